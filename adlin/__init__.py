@@ -13,3 +13,11 @@ from ._errors import (
 from ._system import Junction as Junction, System as System
 
 __version__ = "0.1.0"
+from ._compile import CompiledSystem as CompiledSystem, compile as compile
+from ._linear.linearize import linearize as linearize
+from ._linear.model import LinearModel as LinearModel
+from ._linear.normalize import NormalizedModel as NormalizedModel, normalize as normalize
+from ._linear.pole_table import RootTable as RootTable
+from ._steady.newton import NewtonOptions as NewtonOptions
+from ._steady.operating_point import OperatingPoint as OperatingPoint
+from ._steady.solve import steady_state as steady_state

@@ -1,0 +1,177 @@
+"""Structural checks run once when a model is compiled.
+
+Each check turns a modelling mistake into one sentence that names the
+unknown, equation or parameter at fault and says what to try, before any
+solver runs into it as a singular matrix or a NaN.
+"""
+
+from __future__ import annotations
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+
+from ._errors import FloatingNodeError, HighIndexError, ModelError, ParameterError, did_you_mean
+from ._structure import Structure, find_structure, null_spaces
+from ._system import System
+
+
+def _call(system: System, what: str, fn, *args):
+    """Evaluate a model function, translating its Python errors into adlin ones."""
+    try:
+        return fn(*args)
+    except KeyError as err:
+        key = err.args[0] if err.args else "?"
+        if isinstance(key, str):
+            names = system.param_names
+            raise ParameterError(
+                f"the {what} function of {system.name!r} reads parameter {key!r}, which is not "
+                f"declared; add it to params= or fix the name ({did_you_mean(key, names)})."
+            ) from None
+        raise ModelError(f"the {what} function of {system.name!r} raised KeyError({key!r}).") from None
+    except (ParameterError, ModelError):
+        raise
+    except IndexError as err:
+        raise ModelError(
+            f"the {what} function of {system.name!r} indexes beyond its arguments ({err}); "
+            f"it has {system.n} unknowns {list(system.unknowns)} and "
+            f"{len(system.inputs)} inputs {list(system.inputs)}."
+        ) from None
+    except Exception as err:  # noqa: BLE001  (user code may raise anything)
+        raise ModelError(
+            f"the {what} function of {system.name!r} failed: {type(err).__name__}: {err}"
+        ) from err
+
+
+def check_shapes(system: System) -> None:
+    """Each function returns one value per declared name."""
+    n, m = system.n, len(system.inputs)
+    x = jax.ShapeDtypeStruct((n,), jnp.float64)
+    u = jax.ShapeDtypeStruct((m,), jnp.float64)
+    p = jax.ShapeDtypeStruct((len(system.param_names),), jnp.float64)
+    expect = (("current", system.f, (x, u, p), (n,), "unknowns"),
+              ("charge", system.q, (x, p), (n,), "unknowns"),
+              ("output", system.g, (x, u, p), (len(system.outputs),), "outputs"))
+    for what, fn, args, shape, label in expect:
+        out = _call(system, what, jax.eval_shape, fn, *args)
+        if not hasattr(out, "shape"):
+            raise ModelError(f"the {what} function of {system.name!r} must return one array, "
+                             f"got {type(out).__name__}.")
+        if tuple(out.shape) != shape:
+            names = system.unknowns if label == "unknowns" else system.outputs
+            raise ModelError(
+                f"the {what} function of {system.name!r} returns shape {tuple(out.shape)} but "
+                f"{len(names)} {label} are declared {list(names)}; return one value per name."
+            )
+
+
+def matrices_at(system: System, x, u, p):
+    """f, df/dx, dq/dx at a point, as numpy arrays."""
+    f = np.asarray(_call(system, "current", system.f, x, u, p))
+    J = np.asarray(_call(system, "current", jax.jacfwd(system.f), x, u, p))
+    E = np.asarray(_call(system, "charge", jax.jacfwd(system.q), x, p))
+    return f, J, E
+
+
+def check_finite(system: System, f, J, E, where: str) -> None:
+    """Name the first equation/unknown pair that is not finite."""
+    for label, vec in (("value", f),):
+        bad = np.flatnonzero(~np.isfinite(vec))
+        if bad.size:
+            i = int(bad[0])
+            raise ModelError(
+                f"the current of equation {system.unknowns[i]!r} is {vec[i]} {where}; "
+                "guard logs, divisions and square roots in the model, or give a guess where it "
+                "is defined."
+            )
+    for label, M in (("current", J), ("charge", E)):
+        bad = np.argwhere(~np.isfinite(M))
+        if bad.size:
+            i, j = (int(v) for v in bad[0])
+            raise ModelError(
+                f"d({label} of equation {system.unknowns[i]!r})/d({system.unknowns[j]!r}) is "
+                f"{M[i, j]} {where}; the {label} law is not differentiable there (check sqrt/abs "
+                "at zero, logs of non-positive values)."
+            )
+
+
+def test_point(system: System, u, p):
+    """A generic, deterministic point where the model is finite (for structure checks)."""
+    rng = np.random.default_rng(7)
+    n = system.n
+    base = rng.uniform(-0.05, 0.05, n)
+    candidates = (base, np.abs(base) + 0.1, np.full(n, 0.5) + 0.1 * base)
+    first = None
+    for cand in candidates:
+        x = jnp.asarray(cand)
+        f, J, E = matrices_at(system, x, u, p)
+        if first is None:
+            first = (f, J, E)
+        if np.all(np.isfinite(f)) and np.all(np.isfinite(J)) and np.all(np.isfinite(E)):
+            return x, f, J, E
+    check_finite(system, *first, where="at a generic test point near x = 0")
+    raise AssertionError("unreachable")
+
+
+def _names_of(system: System, vec: np.ndarray, frac: float = 0.2) -> list[str]:
+    big = np.abs(vec) >= frac * np.max(np.abs(vec))
+    return [system.unknowns[i] for i in np.flatnonzero(big)]
+
+
+def check_connectivity(system: System, J: np.ndarray, E: np.ndarray) -> None:
+    """Every unknown must enter some equation, and the DC problem must be determined."""
+    used = (np.any(J != 0, axis=0)) | (np.any(E != 0, axis=0))
+    unused = [system.unknowns[i] for i in np.flatnonzero(~used)]
+    if unused:
+        raise FloatingNodeError(
+            f"unknown {unused[0]!r} enters no equation of {system.name!r}; remove it, or connect "
+            "the node it stands for to the rest of the circuit."
+        )
+    dc_only_storage = [system.unknowns[i] for i in np.flatnonzero(~np.any(J != 0, axis=0))]
+    if dc_only_storage:
+        raise FloatingNodeError(
+            f"{dc_only_storage[0]!r} has no DC path: only storage elements (capacitors) connect "
+            "to it, so its bias is undetermined; add a large resistor to ground or a defined "
+            "bias source."
+        )
+    rank, right, _ = null_spaces(J)
+    if rank < system.n:
+        names = _names_of(system, right[:, 0])
+        raise FloatingNodeError(
+            f"the DC equations of {system.name!r} are singular in {', '.join(map(repr, names))}: "
+            "these float together (no DC path to ground, a loop of inductors or voltage sources, "
+            "or a cut-set of current sources); add a DC path, e.g. a large resistor to ground."
+        )
+
+
+def check_index(system: System, structure: Structure, J: np.ndarray) -> None:
+    """The algebraic block must be invertible (differential index <= 1)."""
+    r = structure.n_dynamic
+    if r == system.n:
+        return
+    A = -J
+    Ap = structure.left @ A @ structure.right
+    A22 = Ap[r:, r:]
+    rank, right, left = null_spaces(A22)
+    if rank < A22.shape[0]:
+        v = structure.right[:, r:] @ right[:, 0]
+        names = _names_of(system, v)
+        raise HighIndexError(
+            f"the algebraic part of {system.name!r} is singular (index > 1) in "
+            f"{', '.join(map(repr, names))}: a voltage source or inductor is tied directly across "
+            "capacitors, or a loop of capacitors and voltage sources exists; add a small series "
+            "resistance to break the loop."
+        )
+
+
+def analyze(system: System) -> Structure:
+    """Run every compile-time check and return the dynamic/algebraic structure."""
+    check_shapes(system)
+    u = system.input_vector()
+    p = system.param_vector()
+    _, f, J, E = test_point(system, u, p)
+    del f
+    check_connectivity(system, J, E)
+    structure = find_structure(E)
+    check_index(system, structure, J)
+    return structure

@@ -1,0 +1,151 @@
+"""compile(system): checked model with jitted steady-state, linearization and poles.
+
+The jitted functions take arrays (inputs, parameters, guess) and are built
+once per model, so new values never cause a retrace.  `compile` is cached
+per System.
+"""
+
+from __future__ import annotations
+
+import functools
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+
+from ._checks import analyze
+from ._linear.model import LinearModel
+from ._steady.newton import JunctionTable, NewtonOptions, newton_solve
+from ._steady.operating_point import OperatingPoint
+from ._structure import Structure
+from ._system import System
+
+
+def _junction_table(system: System) -> JunctionTable:
+    idx = {name: i for i, name in enumerate(system.unknowns)}
+    js = system.junctions
+    return JunctionTable(
+        anode=np.array([idx[j.anode] if j.anode else -1 for j in js], dtype=int),
+        cathode=np.array([idx[j.cathode] if j.cathode else -1 for j in js], dtype=int),
+        vt=np.array([j.thermal_voltage for j in js], dtype=float),
+        vcrit=np.array([j.critical_voltage for j in js], dtype=float),
+    )
+
+
+class CompiledSystem:
+    """A checked System with jitted pure functions of (inputs, params).
+
+    **Arguments:**
+
+    - `system`: the model.
+    - `options`: `NewtonOptions` for the steady-state solver.
+
+    **Raises:** `ModelError` (and subclasses) for the structural problems
+    listed in `adlin._checks`.
+    """
+
+    def __init__(self, system: System, options: NewtonOptions | None = None):
+        self.system = system
+        self.options = options or NewtonOptions()
+        self.structure: Structure = analyze(system)
+        self.junctions = _junction_table(system)
+        self._left = np.asarray(self.structure.left)
+        self._right = np.asarray(self.structure.right)
+        self.solve = jax.jit(self._solve)
+        self.linearize = jax.jit(self._linearize)
+        self.poles = jax.jit(self._poles)
+        self.matrices = jax.jit(self._matrices)
+
+    # -- pure functions (jitted in __init__) -----------------------------
+    def _solve(self, u, p, x0) -> OperatingPoint:
+        """Steady state from guess x0: Newton, then one implicit-function step."""
+        s = self.system
+        res = newton_solve(lambda x: s.f(x, u, p), x0, self.junctions, self.options)
+        converged = res.status == 0
+        # x is differentiable in (u, p) through the implicit function theorem:
+        # x_out = x* - J^-1 f(x*, u, p) with x* and J held constant has the value
+        # x* (f(x*) ~ 0; it is also one more Newton polish) and the exact
+        # derivative dx/dp = -J^-1 df/dp.
+        xs = jax.lax.stop_gradient(res.x)
+        J = jax.lax.stop_gradient(jax.jacfwd(s.f)(xs, u, p))
+        step = jnp.linalg.solve(J, s.f(xs, u, p))
+        x = jnp.where(converged & jnp.all(jnp.isfinite(step)), xs - step, xs)
+        return OperatingPoint(
+            x=x,
+            u=u,
+            p=p,
+            y=s.g(x, u, p),
+            converged=converged,
+            status=res.status,
+            iterations=res.iterations,
+            evaluations=res.evaluations,
+            residual_norm=jnp.max(jnp.abs(res.residual)),
+            unknown_names=s.unknowns,
+            input_names=s.inputs,
+            output_names=s.outputs,
+            param_names=s.param_names,
+            method="newton",
+        )
+
+    def _matrices(self, x, u, p):
+        s = self.system
+        E = jax.jacfwd(s.q)(x, p)
+        A = -jax.jacfwd(s.f, argnums=0)(x, u, p)
+        B = -jax.jacfwd(s.f, argnums=1)(x, u, p)
+        C = jax.jacfwd(s.g, argnums=0)(x, u, p)
+        D = jax.jacfwd(s.g, argnums=1)(x, u, p)
+        m, o = len(s.inputs), len(s.outputs)
+        B = B.reshape(s.n, m)
+        D = D.reshape(o, m)
+        return E, A, B, C, D
+
+    def _linearize(self, x, u, p) -> LinearModel:
+        s = self.system
+        E, A, B, C, D = self._matrices(x, u, p)
+        dyn = tuple(s.unknowns[i] for i in self.structure.dynamic_columns)
+        return LinearModel(
+            E=E, A=A, B=B, C=C, D=D,
+            x0=x, u0=u, y0=s.g(x, u, p),
+            left=jnp.asarray(self._left), right=jnp.asarray(self._right),
+            n_dynamic=self.structure.n_dynamic,
+            state_names=s.unknowns, input_names=s.inputs, output_names=s.outputs,
+            dynamic_names=dyn,
+            unit_items=tuple((k, s.unit(k)) for k in s.unknowns + s.inputs + s.outputs),
+        )
+
+    def _poles(self, u, p, x0):
+        op = self._solve(u, p, x0)
+        return self._linearize(op.x, u, p).poles_padded(), op.converged
+
+    # -- conveniences -----------------------------------------------------
+    def default_guess(self):
+        return jnp.zeros((self.system.n,), dtype=jnp.float64)
+
+    def __repr__(self) -> str:
+        return (f"CompiledSystem({self.system.name!r}, {self.structure.n_dynamic} dynamic of "
+                f"{self.system.n} unknowns)")
+
+
+@functools.lru_cache(maxsize=64)
+def _compile_cached(system: System, options: NewtonOptions) -> CompiledSystem:
+    return CompiledSystem(system, options)
+
+
+def compile(system: System, options: NewtonOptions | None = None) -> CompiledSystem:  # noqa: A001
+    """Check a System and build its jitted functions (cached per System and options).
+
+    **Arguments:**
+
+    - `system`: an `adlin.System`.
+    - `options`: `NewtonOptions` for the steady-state solver (default settings if None).
+
+    **Returns:** a `CompiledSystem` with `solve(u, p, x0)`, `linearize(x, u, p)`,
+    `poles(u, p, x0)` and `matrices(x, u, p)`, all jitted once.
+
+    **Raises:** `ModelError` and subclasses when a structural check fails.
+    """
+    from ._errors import ModelError
+
+    if not isinstance(system, System):
+        raise ModelError(f"compile() needs an adlin.System, got {type(system).__name__}.")
+    return _compile_cached(system, options or NewtonOptions())
