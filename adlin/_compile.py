@@ -13,7 +13,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 
-from ._checks import analyze
+from ._checks import analyze, evaluator
 from ._linear.model import LinearModel
 from ._steady.newton import JunctionTable, NewtonOptions, newton_solve
 from ._steady.operating_point import OperatingPoint
@@ -47,7 +47,8 @@ class CompiledSystem:
     def __init__(self, system: System, options: NewtonOptions | None = None):
         self.system = system
         self.options = options or NewtonOptions()
-        self.structure: Structure = analyze(system)
+        self.evaluate = evaluator(system)  # (f, df/dx, dq/dx) at a point, jitted
+        self.structure: Structure = analyze(system, self.evaluate)
         self.junctions = _junction_table(system)
         self._left = np.asarray(self.structure.left)
         self._right = np.asarray(self.structure.right)

@@ -21,11 +21,12 @@ from .values import Ref
 def _check_control(owner: AbstractElement, control: str, elements) -> None:
     with_branch = [n for n, e in elements.items() if e.has_branch]
     if control not in elements or not elements[control].has_branch:
-        what = "no element" if control not in elements else elements[control].describe()
+        problem = ("there is no element of that name" if control not in elements
+                   else f"{elements[control].describe()} has no branch current")
         raise ModelError(
-            f"{owner.describe()} is controlled by the current of {control!r}, but that is "
-            f"{what} with a branch current; current control needs an inductor, voltage "
-            f"source, vcvs or ccvs ({did_you_mean(control, with_branch)}).")
+            f"{owner.describe()} is controlled by the current of {control!r}, but {problem}; "
+            "current control needs an inductor, voltage source, vcvs or ccvs "
+            f"({did_you_mean(control, with_branch)}).")
 
 
 @dataclasses.dataclass(frozen=True, eq=False)

@@ -69,8 +69,8 @@ class AbstractElement(abc.ABC):
         """Contributions to q: (row, value) pairs."""
         return []
 
-    def junction_pairs(self) -> tuple[tuple[str, str], ...]:
-        """(anode node, cathode node) of each pn junction, for step limiting."""
+    def junction_pairs(self) -> tuple[tuple[str, str, str], ...]:
+        """(anode node, cathode node, label) of each pn junction, for step limiting."""
         return ()
 
     def small_signal(self, at: Bias) -> dict[str, tuple[Any, str]] | None:

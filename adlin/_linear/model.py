@@ -20,6 +20,36 @@ PARTITION_TOL = 1e-9
 INDEX_COND = 1e13
 
 
+_reduce = jax.jit(reduce_descriptor, static_argnums=(7,))
+
+
+@jax.jit
+def _sorted_eigvals(A):
+    p = jnp.linalg.eigvals(A)
+    return p[jnp.argsort(jnp.abs(p))]
+
+
+@jax.jit
+def _transfer(E, A, B, C, D, s):
+    def one(sk):
+        X = jnp.linalg.solve(sk * E - A, B.astype(jnp.complex128))
+        return C @ X + D
+
+    return jnp.moveaxis(jax.vmap(one)(s), 0, -1)
+
+
+@jax.jit
+def _step(A, B, C, D, t):
+    r, m = B.shape
+    big = jnp.zeros((r + m, r + m)).at[:r, :r].set(A).at[:r, r:].set(B)
+
+    def one(tk):
+        gamma = jsl.expm(big * tk)[:r, r:]  # integral of exp(A s) ds B over [0, t]
+        return C @ gamma + D
+
+    return jnp.moveaxis(jax.vmap(one)(t), 0, -1)
+
+
 def _concrete(*arrays) -> bool:
     return not any(isinstance(a, jax.core.Tracer) for a in arrays)
 
@@ -72,7 +102,7 @@ class LinearModel(eqx.Module):
         if self.reduced:
             return self
         r = self.n_dynamic
-        Ar, Br, Cr, Dr, off, cond = reduce_descriptor(
+        Ar, Br, Cr, Dr, off, cond = _reduce(
             self.E, self.A, self.B, self.C, self.D, self.left, self.right, r
         )
         if _concrete(off, cond):
@@ -90,7 +120,7 @@ class LinearModel(eqx.Module):
                     f"(off-block size {float(off):.3g}), so the compile-time partition into "
                     "dynamic and algebraic unknowns does not hold here; report this model."
                 )
-        xz = (jnp.linalg.pinv(self.right) @ self.x0)[:r] if r else jnp.zeros(0)
+        xz = jnp.linalg.solve(self.right, self.x0)[:r] if r else jnp.zeros(0)
         return LinearModel(
             E=jnp.eye(r), A=Ar, B=Br, C=Cr, D=Dr,
             x0=xz, u0=self.u0, y0=self.y0,
@@ -114,8 +144,7 @@ class LinearModel(eqx.Module):
         A, _, _, _ = self.state_space()
         if A.shape[0] == 0:
             return jnp.zeros((0,), jnp.complex128)
-        p = jnp.linalg.eigvals(A)
-        return p[jnp.argsort(jnp.abs(p))]
+        return _sorted_eigvals(A)
 
     def _pair(self, input: str | None, output: str | None) -> tuple[int, int]:
         def pick(kind, names, name):
@@ -149,12 +178,7 @@ class LinearModel(eqx.Module):
     def transfer(self, s) -> jax.Array:
         """H(s) = C (sE - A)^-1 B + D at complex s (rad/s), shape (outputs, inputs, len(s))."""
         s = jnp.atleast_1d(jnp.asarray(s, dtype=jnp.complex128))
-
-        def one(sk):
-            X = jnp.linalg.solve(sk * self.E - self.A, self.B.astype(jnp.complex128))
-            return self.C @ X + self.D
-
-        return jnp.moveaxis(jax.vmap(one)(s), 0, -1)
+        return _transfer(self.E, self.A, self.B, self.C, self.D, s)
 
     def freq_response(self, f_hz) -> jax.Array:
         """Complex frequency response at `f_hz` (Hz): shape (outputs, inputs, len(f_hz))."""
@@ -174,15 +198,8 @@ class LinearModel(eqx.Module):
         **Returns:** shape (outputs, inputs, len(t_s)), deviation from the bias.
         """
         A, B, C, D = self.state_space()
-        r, m = B.shape
         t = jnp.atleast_1d(jnp.asarray(t_s, dtype=jnp.float64))
-        big = jnp.zeros((r + m, r + m)).at[:r, :r].set(A).at[:r, r:].set(B)
-
-        def one(tk):
-            gamma = jsl.expm(big * tk)[:r, r:]  # integral of exp(A s) ds B over [0, t]
-            return C @ gamma + D
-
-        return jnp.moveaxis(jax.vmap(one)(t), 0, -1)
+        return _step(A, B, C, D, t)
 
     # -- tables and exports ------------------------------------------------------
     def pole_table(self) -> RootTable:

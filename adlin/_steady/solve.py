@@ -10,7 +10,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 
-from .._checks import check_finite, matrices_at
+from .._checks import check_finite
 from .._errors import ModelError, ParameterError, SteadyStateError, did_you_mean
 from .._system import System
 from .newton import STATUS_MESSAGES, NewtonOptions
@@ -108,7 +108,7 @@ def steady_state(
     x0 = guess_vector(system, guess)
     traced = _is_traced(u, p, x0)
     if not traced:
-        f, J, E = matrices_at(system, x0, u, p)
+        f, J, E = (np.asarray(a) for a in compiled.evaluate(x0, u, p))
         check_finite(system, f, J, E, where="at the starting guess")
     op = compiled.solve(u, p, x0)
     if not throw:

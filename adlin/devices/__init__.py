@@ -10,7 +10,11 @@ parameters of a law at a bias point by exact forward-mode differentiation.
 """
 
 from .. import _config  # noqa: F401  (float64 policy, before any array exists)
-from ._junction import depletion_charge as depletion_charge, limited_exp as limited_exp
+from ._junction import (
+    depletion_charge as depletion_charge,
+    limited_exp as limited_exp,
+    limited_expm1 as limited_expm1,
+)
 from ._small_signal import (
     bjt_small_signal as bjt_small_signal,
     diode_small_signal as diode_small_signal,
@@ -35,6 +39,7 @@ __all__ = [
     "diode_small_signal",
     "ekv_currents",
     "limited_exp",
+    "limited_expm1",
     "mosfet_charges",
     "mosfet_small_signal",
     "square_law_currents",

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 
+import jax
 import jax.numpy as jnp
 from jax import Array
 from jax.typing import ArrayLike
@@ -51,6 +52,42 @@ def limited_exp(x: ArrayLike) -> Array:
     # the gradient of the used one (0 * inf = nan).
     x_safe = jnp.where(above, EXP_LIMIT, x)
     return jnp.where(above, _EXP_AT_LIMIT * (1.0 + (x - EXP_LIMIT)), jnp.exp(x_safe))
+
+
+@jax.custom_jvp
+def limited_expm1(x: ArrayLike) -> Array:
+    """``limited_exp(x) - 1``, accurate near ``x = 0`` (``expm1`` below the threshold).
+
+    A junction current ``I_S (exp(x) - 1)`` computed as ``exp(x) - 1`` loses
+    all its digits for ``|x| << 1`` and in reverse bias below ``exp(x) ~ 1e-16``;
+    ``expm1`` keeps full relative accuracy there. Above ``x = 80`` it
+    continues linearly exactly like `limited_exp`. Its derivative is that of
+    `limited_exp`, evaluated so that it keeps full relative accuracy in deep
+    reverse bias too.
+
+    **Arguments:**
+
+    - `x`: exponent (dimensionless); may be traced.
+
+    **Returns:**
+
+    ``expm1(x)`` below the threshold, ``limited_exp(x) - 1`` above, same shape as `x`.
+    """
+    x = jnp.asarray(x)
+    above = x > EXP_LIMIT
+    x_safe = jnp.where(above, EXP_LIMIT, x)
+    return jnp.where(above, _EXP_AT_LIMIT * (1.0 + (x - EXP_LIMIT)) - 1.0, jnp.expm1(x_safe))
+
+
+@limited_expm1.defjvp
+def _limited_expm1_jvp(primals, tangents):
+    # JAX differentiates expm1 as expm1(x) + 1, which rounds to 0 below
+    # x ~ -37: a reverse-biased junction would lose its (tiny but exact)
+    # conductance. The derivative of limited_exp is exp(min(x, 80)) exactly.
+    (x,), (dx,) = primals, tangents
+    x = jnp.asarray(x)
+    slope = jnp.exp(jnp.where(x > EXP_LIMIT, EXP_LIMIT, x))
+    return limited_expm1(x), slope * dx
 
 
 def depletion_charge(

@@ -58,6 +58,11 @@ def _float(x: ArrayLike) -> Array:
     return jnp.asarray(x, dtype=jnp.result_type(float))
 
 
+def _neg(x: Array) -> Array:
+    # 0 - x rather than -x: a zero capacitance reads as 0.0, not -0.0, in reports.
+    return 0.0 - x
+
+
 def _value_and_jacobian(fn: Callable, *args: Array) -> tuple[Array, Array]:
     # fn returns a tuple of k terminal quantities; the Jacobian is (k, len(args)).
     def stacked(*a):
@@ -148,11 +153,11 @@ def bjt_small_signal(
         "g_m": g_m,
         "g_pi": g_pi,
         "g_o": g_o,
-        "g_mu": -g[1, 1],
+        "g_mu": _neg(g[1, 1]),
         "beta_ac": g_m / g_pi,
         "beta_dc": i_c / i_b,
-        "c_be": -c[2, 0],
-        "c_bc": -c[0, 1],
+        "c_be": _neg(c[2, 0]),
+        "c_bc": _neg(c[0, 1]),
     }
 
 
@@ -212,9 +217,9 @@ def mosfet_small_signal(
         "g_m": g[0, 0],
         "g_ds": g[0, 1],
         "g_mb": g[0, 2],
-        "c_gs": -c[gate, s],
-        "c_gd": -c[gate, d],
-        "c_gb": -c[gate, b],
-        "c_db": -c[d, b],
-        "c_sb": -c[s, b],
+        "c_gs": _neg(c[gate, s]),
+        "c_gd": _neg(c[gate, d]),
+        "c_gb": _neg(c[gate, b]),
+        "c_db": _neg(c[d, b]),
+        "c_sb": _neg(c[s, b]),
     }

@@ -8,18 +8,15 @@ import jax.numpy as jnp
 from jax import Array
 from jax.typing import ArrayLike
 
-from ._junction import depletion_charge, limited_exp
+from ._junction import depletion_charge, limited_exp, limited_expm1
 from ._polarity import check_polarity
 from ._thermal import DEFAULT_TEMPERATURE, thermal_voltage
 
 
-def _transport_currents(v_be, v_bc, saturation_current, emission_coefficient, temperature):
-    # Ebers-Moll transport currents of the n-type device: I_CC driven by the
-    # base-emitter junction, I_EC by the base-collector junction.
+def _junction_exponentials(v_be, v_bc, emission_coefficient, temperature):
+    # Exponent arguments v/(n V_T) of both junctions of the n-type device.
     nvt = emission_coefficient * thermal_voltage(temperature)
-    i_cc = saturation_current * (limited_exp(v_be / nvt) - 1.0)
-    i_ec = saturation_current * (limited_exp(v_bc / nvt) - 1.0)
-    return i_cc, i_ec
+    return v_be / nvt, v_bc / nvt
 
 
 def bjt_currents(
@@ -54,7 +51,8 @@ def bjt_currents(
     ``v_ce = v_be`` instead of from ``v_ce = 0``; the two differ by
     ``v_be / V_A`` relative (0.7 % at ``V_A = 100 V``). The default
     ``early_voltage = inf`` switches the effect off. Junction exponentials
-    use `limited_exp`, so currents and derivatives stay finite at any bias.
+    use `limited_exp` (and ``expm1`` for ``exp - 1``), so currents and
+    derivatives stay finite at any bias and accurate near zero bias.
     A pnp device (``polarity=-1``) is the npn law applied to the negated
     voltages, with negated currents; give its parameters as positive numbers.
 
@@ -86,10 +84,13 @@ def bjt_currents(
     p = check_polarity(polarity)
     v_be = p * (v_b - v_e)
     v_bc = p * (v_b - v_c)
-    i_cc, i_ec = _transport_currents(
-        v_be, v_bc, saturation_current, emission_coefficient, temperature
-    )
-    i_t = (i_cc - i_ec) * (1.0 - v_bc / early_voltage)
+    x_be, x_bc = _junction_exponentials(v_be, v_bc, emission_coefficient, temperature)
+    i_cc = saturation_current * limited_expm1(x_be)
+    i_ec = saturation_current * limited_expm1(x_bc)
+    # I_CC - I_EC formed from the exponentials, not from the two currents: in
+    # cutoff both are ~ -I_S and their difference would cancel to zero.
+    i_t = saturation_current * (limited_exp(x_be) - limited_exp(x_bc))
+    i_t = i_t * (1.0 - v_bc / early_voltage)
     i_c = p * (i_t - i_ec / reverse_beta)
     i_b = p * (i_cc / forward_beta + i_ec / reverse_beta)
     return i_c, i_b, -(i_c + i_b)
@@ -160,9 +161,9 @@ def bjt_charges(
     p = check_polarity(polarity)
     v_be = p * (v_b - v_e)
     v_bc = p * (v_b - v_c)
-    i_cc, i_ec = _transport_currents(
-        v_be, v_bc, saturation_current, emission_coefficient, temperature
-    )
+    x_be, x_bc = _junction_exponentials(v_be, v_bc, emission_coefficient, temperature)
+    i_cc = saturation_current * limited_expm1(x_be)
+    i_ec = saturation_current * limited_expm1(x_bc)
     shape = dict(
         built_in_potential=built_in_potential,
         grading_coefficient=grading_coefficient,

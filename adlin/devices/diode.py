@@ -5,7 +5,7 @@ from __future__ import annotations
 from jax import Array
 from jax.typing import ArrayLike
 
-from ._junction import depletion_charge, limited_exp
+from ._junction import depletion_charge, limited_expm1
 from ._thermal import DEFAULT_TEMPERATURE, thermal_voltage
 
 
@@ -22,7 +22,8 @@ def diode_current(
 
     with the exponential continued linearly for ``v / (n V_T) > 80``
     (`limited_exp`), so that a Newton solver stepping to 10 V or 100 V sees
-    finite currents and derivatives. The saturation current is taken as given
+    finite currents and derivatives; ``exp - 1`` is evaluated as ``expm1`` so
+    the current keeps full relative accuracy near zero and in reverse bias. The saturation current is taken as given
     at `temperature` (no temperature scaling of ``I_S``). Shockley, "The theory
     of p-n junctions in semiconductors and p-n junction transistors", Bell
     System Technical Journal 28, 1949; Sedra & Smith, Microelectronic Circuits,
@@ -40,7 +41,7 @@ def diode_current(
     The current flowing from anode to cathode through the diode, in amperes.
     """
     vt = thermal_voltage(temperature)
-    return saturation_current * (limited_exp(v / (emission_coefficient * vt)) - 1.0)
+    return saturation_current * limited_expm1(v / (emission_coefficient * vt))
 
 
 def diode_charge(
