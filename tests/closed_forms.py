@@ -53,6 +53,7 @@ def diode_resistor_exact(v_source: float, R: float, Is: float, n: float = 1.0) -
 
 
 # --- series RLC -------------------------------------------------------------------
+@functools.cache
 def series_rlc(R: float, L: float, C: float) -> adlin.System:
     """Voltage source - R - L - C to ground; unknowns capacitor voltage and inductor current.
 
@@ -73,6 +74,7 @@ def series_rlc(R: float, L: float, C: float) -> adlin.System:
 
 
 # --- equal two-section RC ladder ---------------------------------------------------------
+@functools.cache
 def rc_ladder(R: float, C: float) -> adlin.System:
     """Source - R - node 1 (C to ground) - R - node 2 (C to ground).
 
@@ -97,6 +99,7 @@ def rc_ladder_poles(R: float, C: float) -> tuple[float, float]:
 
 
 # --- Van der Pol -------------------------------------------------------------------------------
+@functools.cache
 def van_der_pol(mu: float) -> adlin.System:
     """x'' - mu (1 - x^2) x' + x = 0 as x' = y, y' = mu (1 - x^2) y - x.
 
@@ -112,6 +115,7 @@ def van_der_pol(mu: float) -> adlin.System:
 
 
 # --- descriptor circuit with singular E -----------------------------------------------------------
+@functools.cache
 def descriptor_divider(R1, R2, R3, Resr, C) -> adlin.System:
     """Ideal source at node s; R1 from s to a; R3 from a to ground; R2 from a to b;
     C from b to c; Resr from c to ground.  Nodes s and a carry no storage, the

@@ -90,7 +90,7 @@ class Circuit:
         self._elements: dict[str, AbstractElement] = {}
         self._outputs: dict[str, tuple[Any, str | None]] = {}
         self._version = 0
-        self._cache: tuple[int, System, Assembly] | None = None
+        self._cache: tuple[int, System, Assembly, Callable] | None = None
 
     # -- declarations ----------------------------------------------------------
     def param(self, name: str, default: float, *, unit: str = "") -> str:
@@ -497,7 +497,8 @@ class Circuit:
         if self._cache is not None and self._cache[0] == self._version:
             return self._cache[1]
         system, assembly = self._build()
-        self._cache = (self._version, system, assembly)
+        table = jax.jit(functools.partial(_small_signal_table, assembly))
+        self._cache = (self._version, system, assembly, table)
         return system
 
     def small_signal(self, op: Any, params: Mapping[str, Any] | None = None) -> SmallSignal:
@@ -521,18 +522,10 @@ class Circuit:
         """
         system = self.build()
         assert self._cache is not None
-        layout = self._cache[2].layout
         x = _bias_vector(op, system.unknowns)
         if params is None and isinstance(getattr(op, "params", None), Mapping):
             params = op.params
-        p = system.param_dict(system.param_vector(params))
-        at = Bias(layout, x, None, p)
-        rows = {}
-        for element in self._elements.values():
-            quantities = element.small_signal(at)
-            if quantities is not None:
-                rows[element.name] = quantities
-        return make_table(rows)
+        return self._cache[3](x, system.param_dict(system.param_vector(params)))
 
     def __repr__(self) -> str:
         return (f"Circuit({self.name!r}: {len(self._nodes)} nodes, {len(self._elements)} "
@@ -682,14 +675,16 @@ class Circuit:
             raise ModelError(f"{owner} params must be a dict name -> value, got {params!r}.")
         units = dict(units or {})
         pmap = {}
-        for local, value in params.items():
+        # Names first, so a misspelt name fails before any parameter is created.
+        ordered = sorted(params.items(), key=lambda kv: not isinstance(kv[1], str))
+        for local, value in ordered:
             if not isinstance(local, str) or not local:
                 raise ModelError(f"{owner} parameter names must be non-empty strings, "
                                  f"got {local!r}.")
             unit = units.get(local, LAW_UNITS.get(local, ""))
             pmap[local] = self._value(owner, f"parameter {local!r}", value, f"{name}.{local}",
                                       unit, allow_input=False)
-        return pmap
+        return {local: pmap[local] for local in params}
 
     @contextlib.contextmanager
     def _transaction(self):
@@ -716,6 +711,16 @@ def _check_laws(owner: str, first, second, what=("current", "charge")) -> None:
     for label, fn in zip(what, (first, second), strict=True):
         if fn is not None and not callable(fn):
             raise ModelError(f"{owner} {label}= must be a function, got {fn!r}.")
+
+
+def _small_signal_table(assembly: Assembly, x, p) -> SmallSignal:
+    at = Bias(assembly.layout, x, None, p)
+    rows = {}
+    for element in assembly.elements:
+        quantities = element.small_signal(at)
+        if quantities is not None:
+            rows[element.name] = quantities
+    return make_table(rows)
 
 
 def _bias_vector(op: Any, unknowns: tuple[str, ...]):
