@@ -612,6 +612,10 @@ class Circuit:
                     continue  # a shorted junction never needs limiting
                 vals = {k: (self._values.default(refs[k]) if k in refs else d)
                         for k, d in _JUNCTION_DEFAULTS.items()}
+                bad = [k for k, v in vals.items() if not v > 0]
+                if bad:
+                    raise ModelError(f"junction {label!r} needs a positive {bad[0]} (default "
+                                     f"value {vals[bad[0]]!r}) to set its Newton step limits.")
                 nvt, vcrit = junction_limits(vals["saturation_current"],
                                              vals["emission_coefficient"], vals["temperature"])
                 out.append(Junction(anode=layout.unknown_of_node(anode),
@@ -738,4 +742,6 @@ def _bias_vector(op: Any, unknowns: tuple[str, ...]):
     if missing:
         raise ModelError(f"the operating point has no value for unknown(s) {missing}; give "
                          "every unknown of the circuit by name.")
+    if not any(isinstance(v, jax.core.Tracer) for v in values):
+        return jnp.asarray(np.asarray(values, dtype=np.float64))  # one transfer, no compile
     return jnp.stack([jnp.asarray(v, dtype=jnp.float64) for v in values])

@@ -13,7 +13,6 @@ from collections.abc import Mapping, Sequence
 from typing import Any
 
 import equinox as eqx
-import jax.numpy as jnp
 import numpy as np
 
 Quantities = dict[str, tuple[Any, str]]
@@ -58,7 +57,7 @@ class SmallSignal(eqx.Module):
             lines.append(f"{name}:")
             for q, value in quantities.items():
                 try:
-                    text = f"{float(np.asarray(value)):.6g}"
+                    text = f"{float(np.asarray(value)) + 0.0:.6g}"  # no "-0"
                 except TypeError:  # a tracer
                     text = repr(value)
                 lines.append(f"  {q:<10} {text} {units[name][q]}".rstrip())
@@ -133,7 +132,3 @@ def mosfet_summary(terminals: Sequence[str], i, g, q, c) -> Quantities:
         out["c_gd"] = (-c[gt, d], "F")
         out["c_gb"] = (-c[gt, b], "F")
     return out
-
-
-def zero_like(x):
-    return jnp.zeros_like(jnp.asarray(x))

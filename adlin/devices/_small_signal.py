@@ -4,13 +4,15 @@ Each helper evaluates a law and its Jacobian with respect to terminal
 voltages at one bias point (``jax.jacfwd``, so the numbers are exact
 derivatives of the law, not finite differences) and names the entries the
 way the textbook hybrid-pi and MOS small-signal models do. They are pure
-JAX: they work under ``jax.jit`` (with `law` static) and ``jax.vmap``, and
-can themselves be differentiated with respect to bias and parameters.
+JAX, compiled with ``jax.jit`` on first use (a first eager evaluation would
+otherwise compile every primitive separately, which takes seconds), and work
+inside ``jax.jit``, ``jax.vmap`` and ``jax.grad`` of the caller.
 """
 
 from __future__ import annotations
 
 import difflib
+import functools
 import inspect
 from collections.abc import Callable
 from typing import Any
@@ -73,6 +75,7 @@ def _value_and_jacobian(fn: Callable, *args: Array) -> tuple[Array, Array]:
     return value, jnp.stack(cols, axis=-1)
 
 
+@jax.jit
 def diode_small_signal(v: ArrayLike, **params: Any) -> dict[str, Array]:
     """Small-signal conductance and capacitance of a junction diode at bias `v`.
 
@@ -101,6 +104,7 @@ def diode_small_signal(v: ArrayLike, **params: Any) -> dict[str, Array]:
     return {"i_d": i_d, "g_d": g_d, "c_d": c_d}
 
 
+@jax.jit
 def bjt_small_signal(
     v_c: ArrayLike, v_b: ArrayLike, v_e: ArrayLike, **params: Any
 ) -> dict[str, Array]:
@@ -161,6 +165,7 @@ def bjt_small_signal(
     }
 
 
+@functools.partial(jax.jit, static_argnames=("law",))
 def mosfet_small_signal(
     v_d: ArrayLike,
     v_g: ArrayLike,
