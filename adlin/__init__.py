@@ -11,7 +11,7 @@ from ._errors import (
     SteadyStateError as SteadyStateError,
 )
 from ._system import Junction as Junction, System as System
-from ._circuit import Circuit as Circuit
+from ._circuit import Circuit as Circuit, SmallSignal as SmallSignal
 
 __version__ = "0.1.0"
 from ._compile import CompiledSystem as CompiledSystem, compile as compile

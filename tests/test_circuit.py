@@ -20,8 +20,9 @@ from hypothesis import strategies as st
 
 import adlin
 
-needs_devices = pytest.mark.skipif(importlib.util.find_spec("adlin.devices") is None,
-                                   reason="adlin.devices is not installed")
+needs_devices = pytest.mark.skipif(
+    importlib.util.find_spec("adlin.devices") is None, reason="adlin.devices is not installed"
+)
 
 K_B = 1.380649e-23  # J/K, exact (2019 SI)
 Q_E = 1.602176634e-19  # C, exact (2019 SI)
@@ -94,9 +95,11 @@ def test_divider_f_is_hand_kcl_and_solution_is_divider_formula():
     x = jnp.array([4.0, 1.5, -2e-4])
     f = np.asarray(F(sys, x))
     v_in, v_out, i_v = 4.0, 1.5, -2e-4
-    hand = [(v_in - v_out) / R1 + i_v,  # leaving "in": through R1 and into V1's + terminal
-            (v_out - v_in) / R1 + v_out / R2,  # leaving "out"
-            v_in - V]  # source row v_+ - v_- - V
+    hand = [
+        (v_in - v_out) / R1 + i_v,  # leaving "in": through R1 and into V1's + terminal
+        (v_out - v_in) / R1 + v_out / R2,  # leaving "out"
+        v_in - V,
+    ]  # source row v_+ - v_- - V
     np.testing.assert_allclose(f, hand, rtol=1e-14, atol=1e-18)
     x_star = solve_linear(sys)
     np.testing.assert_allclose(x_star[1], V * R2 / (R1 + R2), rtol=1e-13)
@@ -247,16 +250,16 @@ def test_declared_params_inputs_and_ground_alias():
     assert sys.params == {"R_load": 100.0}
     assert sys.units["R_load"] == "ohm" and sys.units["i_bias"] == "A"
     np.testing.assert_allclose(solve_linear(sys), [0.1], rtol=1e-14)
-    np.testing.assert_allclose(solve_linear(sys, inputs={"i_bias": 2e-3},
-                                            params={"R_load": 50.0}), [0.1], rtol=1e-14)
+    np.testing.assert_allclose(
+        solve_linear(sys, inputs={"i_bias": 2e-3}, params={"R_load": 50.0}), [0.1], rtol=1e-14
+    )
     assert c.nodes == ("a",) and c.elements == ("I1", "R1")
 
 
 def test_output_kinds():
     c = series_rlc(10.0, 1e-3, 1e-6)
     c.output("v_ab", ("a", "b"))
-    c.output("p_r", lambda s: (s["v_in"] - s["v_a"]) ** 2 / s["R1"] + 0.0 * s["v_in"],
-             unit="W")
+    c.output("p_r", lambda s: (s["v_in"] - s["v_a"]) ** 2 / s["R1"] + 0.0 * s["v_in"], unit="W")
     sys = c.build()
     assert sys.outputs == ("v_c", "i_l", "v_ab", "p_r")
     assert [sys.units[o] for o in sys.outputs] == ["V", "A", "V", "W"]
@@ -279,8 +282,13 @@ def kcl_circuit():
     c.resistor("R1", "a", "b", 1.0)
     c.resistor("R2", "b", "gnd", 1.0)
     c.current_source("I1", "gnd", "c", 1.0)
-    c.two_terminal("D1", "c", "gnd", current=_shockley,
-                   params={"saturation_current": 1e-14, "emission_coefficient": 1.0})
+    c.two_terminal(
+        "D1",
+        "c",
+        "gnd",
+        current=_shockley,
+        params={"saturation_current": 1e-14, "emission_coefficient": 1.0},
+    )
     c.vccs("G1", "a", "gnd", "b", "c", 1.0)
     c.resistor("R3", "c", "a", 1.0)
     c.capacitor("C1", "b", "c", 1.0)
@@ -297,8 +305,17 @@ positive = st.floats(0.1, 10.0, allow_nan=False)
 
 
 @settings(max_examples=40, deadline=None)
-@given(va=volts, vb=volts, vc=volts, iv=volts, il=volts, r2=positive, i1=positive,
-       gm=positive, c2=positive)
+@given(
+    va=volts,
+    vb=volts,
+    vc=volts,
+    iv=volts,
+    il=volts,
+    r2=positive,
+    i1=positive,
+    gm=positive,
+    c2=positive,
+)
 def test_kcl_node_rows_sum_to_minus_ground_current(va, vb, vc, iv, il, r2, i1, gm, c2):
     # Kirchhoff's current law over the whole circuit: the currents leaving all
     # nodes, ground included, sum to zero (Alexander & Sadiku, ch. 2).  The
@@ -342,32 +359,54 @@ def _ebers_moll(v, p):
 def test_user_two_terminal_and_device_give_params_junctions_and_small_signal():
     c = adlin.Circuit("user_laws")
     c.param("Is_shared", 2e-14, unit="A")
-    c.two_terminal("D1", "a", "gnd", current=_shockley,
-                   charge=lambda v, p: p["c0"] * v,
-                   params={"saturation_current": "Is_shared", "emission_coefficient": 1.0,
-                           "c0": 3e-12},
-                   units={"c0": "F"}, junction=True)
-    c.device("Q1", {"c": "col", "b": "a", "e": "gnd"}, currents=_ebers_moll,
-             params={"saturation_current": 1e-16, "forward_beta": 100.0, "reverse_beta": 1.0},
-             junctions=(("b", "e"), ("b", "c")))
+    c.two_terminal(
+        "D1",
+        "a",
+        "gnd",
+        current=_shockley,
+        charge=lambda v, p: p["c0"] * v,
+        params={"saturation_current": "Is_shared", "emission_coefficient": 1.0, "c0": 3e-12},
+        units={"c0": "F"},
+        junction=True,
+    )
+    c.device(
+        "Q1",
+        {"c": "col", "b": "a", "e": "gnd"},
+        currents=_ebers_moll,
+        params={"saturation_current": 1e-16, "forward_beta": 100.0, "reverse_beta": 1.0},
+        junctions=(("b", "e"), ("b", "c")),
+    )
     c.resistor("R1", "col", "gnd", 1e3)
     sys = c.build()
-    assert set(sys.params) == {"Is_shared", "D1.emission_coefficient", "D1.c0",
-                               "Q1.saturation_current", "Q1.forward_beta",
-                               "Q1.reverse_beta", "R1"}
+    assert set(sys.params) == {
+        "Is_shared",
+        "D1.emission_coefficient",
+        "D1.c0",
+        "Q1.saturation_current",
+        "Q1.forward_beta",
+        "Q1.reverse_beta",
+        "R1",
+    }
     assert sys.units["D1.c0"] == "F" and sys.units["Q1.saturation_current"] == "A"
     assert [(j.anode, j.cathode) for j in sys.junctions] == [
-        ("v_a", None), ("v_a", None), ("v_a", "v_col")]
+        ("v_a", None),
+        ("v_a", None),
+        ("v_a", "v_col"),
+    ]
     # Critical voltage n V_T ln(n V_T / (sqrt 2 I_s)) (Vlach & Singhal, 1994).
     j = sys.junctions[0]
     assert j.thermal_voltage == pytest.approx(vt(), rel=1e-12)
-    assert j.critical_voltage == pytest.approx(vt() * math.log(vt() / (math.sqrt(2) * 2e-14)),
-                                               rel=1e-12)
+    assert j.critical_voltage == pytest.approx(
+        vt() * math.log(vt() / (math.sqrt(2) * 2e-14)), rel=1e-12
+    )
     # The diode row of f is the Shockley current plus the BJT base current.
     x = jnp.array([0.65, 3.0])
     f = F(sys, x)
-    expected = 2e-14 * math.expm1(0.65 / vt()) + 1e-16 * math.expm1(0.65 / vt()) / 100.0 \
+    expected = (
+        2e-14 * math.expm1(0.65 / vt())
+        + 1e-16 * math.expm1(0.65 / vt()) / 100.0
         + 1e-16 * math.expm1((0.65 - 3.0) / vt()) / 1.0
+    )
     np.testing.assert_allclose(f[0], expected, rtol=1e-12)
     ss = c.small_signal({"v_a": 0.65, "v_col": 3.0})
     # g_d = (I + I_s) / (n V_T) (Sedra & Smith, sec. 4.3).
@@ -377,8 +416,9 @@ def test_user_two_terminal_and_device_give_params_junctions_and_small_signal():
     # A generic device reports its whole conductance matrix by terminal pair.
     i_c = ss["Q1"]["i[c]"]
     np.testing.assert_allclose(ss["Q1"]["g[c,b]"], i_c / vt(), rtol=1e-6)  # g_m = I_C / V_T
-    np.testing.assert_allclose(ss["Q1"]["g[b,b]"] + ss["Q1"]["g[b,c]"] + ss["Q1"]["g[b,e]"],
-                               0.0, atol=1e-15)  # only voltage differences matter
+    np.testing.assert_allclose(
+        ss["Q1"]["g[b,b]"] + ss["Q1"]["g[b,c]"] + ss["Q1"]["g[b,e]"], 0.0, atol=1e-15
+    )  # only voltage differences matter
     assert ss.units["Q1"]["g[c,b]"] == "S" and "c[c,b]" not in ss["Q1"]
 
 
@@ -410,8 +450,9 @@ def test_diode_wrapper_params_junction_and_small_signal():
     nvt = 1.5 * vt()
     assert (j.anode, j.cathode) == ("v_a", None)
     assert j.thermal_voltage == pytest.approx(nvt, rel=1e-12)
-    assert j.critical_voltage == pytest.approx(nvt * math.log(nvt / (math.sqrt(2) * 1e-14)),
-                                               rel=1e-12)
+    assert j.critical_voltage == pytest.approx(
+        nvt * math.log(nvt / (math.sqrt(2) * 1e-14)), rel=1e-12
+    )
     ss = c.small_signal({"v_in": 1.0, "v_a": 0.6, "i_V1": 0.0})
     # Shockley: I = I_s (exp(v/(n V_T)) - 1), g_d = (I + I_s)/(n V_T) (Sedra & Smith 4.3).
     i_d = 1e-14 * math.expm1(0.6 / nvt)
@@ -454,8 +495,15 @@ def test_bjt_wrapper_junctions_params_and_gm():
     # pnp: junctions point the other way; small-signal g_m stays positive.
     c.voltage_source("VE", "emit", "gnd", 5.0)
     c.resistor("RP", "pcol", "gnd", 1e3)
-    c.bjt("Q2", c="pcol", b="vcc", e="emit", polarity="pnp", base_emitter_capacitance=1e-12,
-          early_voltage=80.0)
+    c.bjt(
+        "Q2",
+        c="pcol",
+        b="vcc",
+        e="emit",
+        polarity="pnp",
+        base_emitter_capacitance=1e-12,
+        early_voltage=80.0,
+    )
     sys2 = c.build()
     assert sys2.params["Q2.early_voltage"] == 80.0
     assert sys2.params["Q2.base_emitter_capacitance"] == 1e-12
@@ -479,8 +527,16 @@ def test_mosfet_wrapper_square_law_gm():
     c.voltage_source("VDD", "vdd", "gnd", 3.0)
     c.voltage_source("VG", "gate", "gnd", 1.2)
     c.resistor("RD", "vdd", "drain", 5e3)
-    c.mosfet("M1", d="drain", g="gate", s="gnd", law="square", transconductance_parameter=k,
-             threshold_voltage=v_t, gate_drain_capacitance=5e-15)
+    c.mosfet(
+        "M1",
+        d="drain",
+        g="gate",
+        s="gnd",
+        law="square",
+        transconductance_parameter=k,
+        threshold_voltage=v_t,
+        gate_drain_capacitance=5e-15,
+    )
     sys = c.build()
     assert sys.params["M1.transconductance_parameter"] == k
     assert sys.junctions == ()
@@ -502,8 +558,9 @@ def test_small_signal_accepts_operating_point_vector_and_jit():
     jitted = jax.jit(c.small_signal)(x)
     np.testing.assert_allclose(jitted["D1"]["g_d"], direct["D1"]["g_d"], rtol=1e-14)
     # Gradient of g_d with respect to the saturation current: g_d is linear in I_s.
-    grad = jax.jit(jax.grad(
-        lambda i_s: c.small_signal(x, {"D1.saturation_current": i_s})["D1"]["g_d"]))
+    grad = jax.jit(
+        jax.grad(lambda i_s: c.small_signal(x, {"D1.saturation_current": i_s})["D1"]["g_d"])
+    )
     np.testing.assert_allclose(grad(1e-14), direct["D1"]["g_d"] / 1e-14, rtol=1e-10)
     assert "g_d" in str(direct)
 
@@ -533,16 +590,28 @@ def _small():
         (lambda c: c.capacitor("C1", "a", "b", "v_in"), adlin.ModelError, "cannot depend on inp"),
         (lambda c: c.vccs("G1", "a", "gnd", "b", "b", 1.0), adlin.ModelError, "both controls"),
         (lambda c: c.bjt("Q1", c="a", e="gnd"), adlin.ModelError, r"missing terminal\(s\) \['b'\]"),
-        (lambda c: c.bjt("Q1", c="a", b="b", e="gnd", polarity="nnp"), adlin.ModelError,
-         "polarity must be one of"),
-        (lambda c: c.mosfet("M1", d="a", g="b", s="gnd", polarity="n"), adlin.ModelError,
-         "polarity"),
-        (lambda c: c.device("X1", {"p": "a", "n": "a"}, currents=lambda v, p: {}),
-         adlin.ModelError, "all its terminals"),
+        (
+            lambda c: c.bjt("Q1", c="a", b="b", e="gnd", polarity="nnp"),
+            adlin.ModelError,
+            "polarity must be one of",
+        ),
+        (
+            lambda c: c.mosfet("M1", d="a", g="b", s="gnd", polarity="n"),
+            adlin.ModelError,
+            "polarity",
+        ),
+        (
+            lambda c: c.device("X1", {"p": "a", "n": "a"}, currents=lambda v, p: {}),
+            adlin.ModelError,
+            "all its terminals",
+        ),
         (lambda c: c.two_terminal("X1", "a", "gnd"), adlin.ModelError, "needs a current="),
         (lambda c: c.param("R_load", 1.0), adlin.ModelError, "declared twice"),
-        (lambda c: c.output("v_out", "a") and c.output("v_out", "a"), adlin.ModelError,
-         "declared twice"),
+        (
+            lambda c: c.output("v_out", "a") and c.output("v_out", "a"),
+            adlin.ModelError,
+            "declared twice",
+        ),
     ],
 )
 def test_element_errors(call, error, match):
@@ -555,11 +624,15 @@ def test_element_errors(call, error, match):
     "call, match",
     [
         (lambda c: c.mosfet("M1", d="a", g="b", s="gnd", law="bsim"), "law must be one of"),
-        (lambda c: c.diode("D1", "a", "gnd", saturation_curent=1e-14),
-         "did you mean 'saturation_current'"),
+        (
+            lambda c: c.diode("D1", "a", "gnd", saturation_curent=1e-14),
+            "did you mean 'saturation_current'",
+        ),
         (lambda c: c.bjt("Q1", c="a", b="b", e="gnd", forward_beta=[1.0]), "number or the name"),
-        (lambda c: c.bjt("Q1", c="a", b="b", e="gnd", forward_beta="beta"),
-         "neither a declared parameter.*valid names are 'R_load', 'R1', 'v_in'"),
+        (
+            lambda c: c.bjt("Q1", c="a", b="b", e="gnd", forward_beta="beta"),
+            "neither a declared parameter.*valid names are 'R_load', 'R1', 'v_in'",
+        ),
     ],
 )
 def test_wrapper_errors(call, match):
@@ -580,24 +653,52 @@ def test_failed_element_leaves_no_trace():
     "setup, error, match",
     [
         (lambda c: None, adlin.ModelError, "has no elements"),
-        (lambda c: c.resistor("R1", "a", "b", 1.0), adlin.FloatingNodeError,
-         "connects to ground 'gnd'"),
-        (lambda c: (c.resistor("R1", "a", "gnd", 1.0), c.resistor("R2", "b", "c", 1.0)),
-         adlin.FloatingNodeError, r"nodes \['b', 'c'\] are not connected"),
-        (lambda c: (c.resistor("R1", "out", "gnd", 1.0), c.output("v", "ot")), adlin.ModelError,
-         "node 'ot'.*did you mean 'out'"),
-        (lambda c: (c.resistor("R1", "out", "gnd", 1.0), c.output("v", 3)), adlin.ModelError,
-         "must be a node name"),
-        (lambda c: (c.resistor("R1", "a", "gnd", 1.0), c.cccs("F1", "a", "gnd", "R1", 2.0)),
-         adlin.ModelError, "controlled by the current of 'R1'"),
-        (lambda c: (c.input("v_bat", 3.7), c.voltage_source("VB", "bat", "gnd", "v_bat")),
-         adlin.ModelError, "input 'v_bat' has the same name as the voltage unknown of node 'bat'"),
-        (lambda c: (c.resistor("R1", "a", "gnd", 1.0),
-                    c.device("X1", {"p": "a", "n": "gnd"}, currents=lambda v, p: {"q": v["p"]})),
-         adlin.ModelError, "terminal 'q', which is not one of its terminals"),
-        (lambda c: (c.resistor("R1", "a", "gnd", 1.0),
-                    c.two_terminal("X1", "a", "gnd", current=lambda v, p: jnp.stack([v, v]))),
-         adlin.ModelError, r"current has shape \(2,\)"),
+        (
+            lambda c: c.resistor("R1", "a", "b", 1.0),
+            adlin.FloatingNodeError,
+            "connects to ground 'gnd'",
+        ),
+        (
+            lambda c: (c.resistor("R1", "a", "gnd", 1.0), c.resistor("R2", "b", "c", 1.0)),
+            adlin.FloatingNodeError,
+            r"nodes \['b', 'c'\] are not connected",
+        ),
+        (
+            lambda c: (c.resistor("R1", "out", "gnd", 1.0), c.output("v", "ot")),
+            adlin.ModelError,
+            "node 'ot'.*did you mean 'out'",
+        ),
+        (
+            lambda c: (c.resistor("R1", "out", "gnd", 1.0), c.output("v", 3)),
+            adlin.ModelError,
+            "must be a node name",
+        ),
+        (
+            lambda c: (c.resistor("R1", "a", "gnd", 1.0), c.cccs("F1", "a", "gnd", "R1", 2.0)),
+            adlin.ModelError,
+            "controlled by the current of 'R1'",
+        ),
+        (
+            lambda c: (c.input("v_bat", 3.7), c.voltage_source("VB", "bat", "gnd", "v_bat")),
+            adlin.ModelError,
+            "input 'v_bat' has the same name as the voltage unknown of node 'bat'",
+        ),
+        (
+            lambda c: (
+                c.resistor("R1", "a", "gnd", 1.0),
+                c.device("X1", {"p": "a", "n": "gnd"}, currents=lambda v, p: {"q": v["p"]}),
+            ),
+            adlin.ModelError,
+            "terminal 'q', which is not one of its terminals",
+        ),
+        (
+            lambda c: (
+                c.resistor("R1", "a", "gnd", 1.0),
+                c.two_terminal("X1", "a", "gnd", current=lambda v, p: jnp.stack([v, v])),
+            ),
+            adlin.ModelError,
+            r"current has shape \(2,\)",
+        ),
     ],
 )
 def test_build_errors(setup, error, match):
@@ -610,7 +711,12 @@ def test_build_errors(setup, error, match):
 def test_small_signal_needs_every_unknown():
     c = adlin.Circuit("d")
     c.current_source("I1", "gnd", "a", 1e-3)
-    c.two_terminal("D1", "a", "gnd", current=_shockley,
-                   params={"saturation_current": 1e-14, "emission_coefficient": 1.0})
+    c.two_terminal(
+        "D1",
+        "a",
+        "gnd",
+        current=_shockley,
+        params={"saturation_current": 1e-14, "emission_coefficient": 1.0},
+    )
     with pytest.raises(adlin.ModelError, match=r"no value for unknown\(s\) \['v_a'\]"):
         c.small_signal({"v_b": 0.3})

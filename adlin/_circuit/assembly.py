@@ -25,8 +25,9 @@ Stamp = list[tuple[int, Any]]
 class Layout:
     """Positions of node voltages, branch currents and inputs in x and u."""
 
-    def __init__(self, nodes: Sequence[str], branches: Sequence[str], ground: str,
-                 inputs: Sequence[str]):
+    def __init__(
+        self, nodes: Sequence[str], branches: Sequence[str], ground: str, inputs: Sequence[str]
+    ):
         self.nodes = tuple(nodes)
         self.branches = tuple(branches)  # element names that carry a branch current
         self.ground = ground
@@ -36,7 +37,8 @@ class Layout:
         self.input_index = {name: k for k, name in enumerate(inputs)}
         self.n = len(self.nodes) + len(self.branches)
         self.unknowns = tuple(f"v_{node}" for node in self.nodes) + tuple(
-            f"i_{name}" for name in self.branches)
+            f"i_{name}" for name in self.branches
+        )
 
     def unknown_of_node(self, node: str) -> str | None:
         """Unknown name of a node voltage, None for ground."""
@@ -92,8 +94,9 @@ class Assembly:
     are bound methods of this object, so a System compares and hashes by it.
     """
 
-    def __init__(self, layout: Layout, elements: Sequence[Any],
-                 probes: Sequence[Callable[[Bias], Any]]):
+    def __init__(
+        self, layout: Layout, elements: Sequence[Any], probes: Sequence[Callable[[Bias], Any]]
+    ):
         self.layout = layout
         self.elements = tuple(elements)
         self.storage = tuple(e for e in self.elements if e.stores_charge)

@@ -9,22 +9,24 @@ from typing import Any
 
 import jax
 import jax.numpy as jnp
-import numpy as np
 
-from .._errors import FloatingNodeError, ModelError, did_you_mean
-from .._system import Junction, System
+from .._errors import ModelError
+from .._system import System
 from . import laws
-from .assembly import Assembly, Bias, Layout
+from .assembly import Assembly, Layout
 from .controlled import Cccs, Ccvs, Vccs, Vcvs
-from .elements import (AbstractElement, Capacitor, CurrentSource, Inductor, Resistor,
-                       VoltageSource)
+from .elements import AbstractElement, Capacitor, CurrentSource, Inductor, Resistor, VoltageSource
 from .nonlinear import Device, TwoTerminal
 from .outputs import make_probe
-from .small_signal import SmallSignal, bjt_summary, make_table, mosfet_summary
-from .values import LAW_UNITS, Ref, ValueTable, junction_limits
-
-_JUNCTION_DEFAULTS = {"saturation_current": 1e-14, "emission_coefficient": 1.0,
-                      "temperature": 300.15}
+from .small_signal import (
+    SmallSignal,
+    bias_vector,
+    bjt_summary,
+    mosfet_summary,
+    small_signal_table,
+)
+from .topology import check_connected, check_names, junction_table
+from .values import LAW_UNITS, Ref, ValueTable
 
 
 class Circuit:
@@ -139,8 +141,10 @@ class Circuit:
         with self._transaction():
             r = self._value(owner, "resistance", resistance, name, "ohm")
             if r.kind == "param" and self._values.default(r) == 0.0:
-                raise ModelError(f"{owner} has zero resistance, which is a short circuit; use "
-                                 "a 0 V voltage source, or a small resistance.")
+                raise ModelError(
+                    f"{owner} has zero resistance, which is a short circuit; use "
+                    "a 0 V voltage source, or a small resistance."
+                )
             return self._add(Resistor(name, a, b, r))
 
     def capacitor(self, name: str, a: str, b: str, capacitance: float | str) -> str:
@@ -203,11 +207,19 @@ class Circuit:
         owner = self._start("current source", name)
         a, b = self._two_nodes(owner, a, b)
         with self._transaction():
-            return self._add(CurrentSource(name, a, b, self._value(owner, "current", current,
-                                                                     name, "A")))
+            return self._add(
+                CurrentSource(name, a, b, self._value(owner, "current", current, name, "A"))
+            )
 
-    def vccs(self, name: str, out_plus: str, out_minus: str, ctrl_plus: str, ctrl_minus: str,
-             transconductance: float | str) -> str:
+    def vccs(
+        self,
+        name: str,
+        out_plus: str,
+        out_minus: str,
+        ctrl_plus: str,
+        ctrl_minus: str,
+        transconductance: float | str,
+    ) -> str:
         """A voltage-controlled current source.
 
         The current ``gm (v_ctrl_plus - v_ctrl_minus)`` flows from `out_plus`
@@ -226,8 +238,15 @@ class Circuit:
             gm = self._value(owner, "transconductance", transconductance, name, "S")
             return self._add(Vccs(name, a, b, c, d, gm))
 
-    def vcvs(self, name: str, out_plus: str, out_minus: str, ctrl_plus: str, ctrl_minus: str,
-             gain: float | str) -> str:
+    def vcvs(
+        self,
+        name: str,
+        out_plus: str,
+        out_minus: str,
+        ctrl_plus: str,
+        ctrl_minus: str,
+        gain: float | str,
+    ) -> str:
         """A voltage-controlled voltage source, ``v_out = gain * v_ctrl``.
 
         Adds the unknown ``i_<name>``, entering at `out_plus` as for a voltage
@@ -245,8 +264,9 @@ class Circuit:
         with self._transaction():
             return self._add(Vcvs(name, a, b, c, d, self._value(owner, "gain", gain, name, "V/V")))
 
-    def cccs(self, name: str, out_plus: str, out_minus: str, control: str,
-             gain: float | str) -> str:
+    def cccs(
+        self, name: str, out_plus: str, out_minus: str, control: str, gain: float | str
+    ) -> str:
         """A current-controlled current source.
 
         The current ``gain * i_<control>`` flows from `out_plus` through the
@@ -263,11 +283,13 @@ class Circuit:
         owner = self._start("cccs", name)
         a, b = self._two_nodes(owner, out_plus, out_minus)
         with self._transaction():
-            return self._add(Cccs(name, a, b, str(control),
-                                  self._value(owner, "gain", gain, name, "A/A")))
+            return self._add(
+                Cccs(name, a, b, str(control), self._value(owner, "gain", gain, name, "A/A"))
+            )
 
-    def ccvs(self, name: str, out_plus: str, out_minus: str, control: str,
-             transresistance: float | str) -> str:
+    def ccvs(
+        self, name: str, out_plus: str, out_minus: str, control: str, transresistance: float | str
+    ) -> str:
         """A current-controlled voltage source, ``v_out = r * i_<control>``.
 
         Adds the unknown ``i_<name>``, entering at `out_plus`.
@@ -284,12 +306,18 @@ class Circuit:
             return self._add(Ccvs(name, a, b, str(control), r))
 
     # -- nonlinear elements ------------------------------------------------------
-    def two_terminal(self, name: str, a: str, b: str, *,
-                     current: Callable[[Any, dict], Any] | None = None,
-                     charge: Callable[[Any, dict], Any] | None = None,
-                     params: Mapping[str, float | str] | None = None,
-                     units: Mapping[str, str] | None = None,
-                     junction: bool = False) -> str:
+    def two_terminal(
+        self,
+        name: str,
+        a: str,
+        b: str,
+        *,
+        current: Callable[[Any, dict], Any] | None = None,
+        charge: Callable[[Any, dict], Any] | None = None,
+        params: Mapping[str, float | str] | None = None,
+        units: Mapping[str, str] | None = None,
+        junction: bool = False,
+    ) -> str:
         """A nonlinear two-terminal element given by its laws.
 
         **Arguments:**
@@ -313,15 +341,21 @@ class Circuit:
         _check_laws(owner, current, charge)
         with self._transaction():
             pmap = self._device_params(owner, name, params, units)
-            return self._add(TwoTerminal(name, a, b, current, charge, pmap,
-                                         junction=bool(junction)))
+            return self._add(
+                TwoTerminal(name, a, b, current, charge, pmap, junction=bool(junction))
+            )
 
-    def device(self, name: str, terminals: Mapping[str, str], *,
-               currents: Callable[[dict, dict], Mapping[str, Any]] | None = None,
-               charges: Callable[[dict, dict], Mapping[str, Any]] | None = None,
-               params: Mapping[str, float | str] | None = None,
-               units: Mapping[str, str] | None = None,
-               junctions: tuple[tuple[str, str], ...] = ()) -> str:
+    def device(
+        self,
+        name: str,
+        terminals: Mapping[str, str],
+        *,
+        currents: Callable[[dict, dict], Mapping[str, Any]] | None = None,
+        charges: Callable[[dict, dict], Mapping[str, Any]] | None = None,
+        params: Mapping[str, float | str] | None = None,
+        units: Mapping[str, str] | None = None,
+        junctions: tuple[tuple[str, str], ...] = (),
+    ) -> str:
         """A nonlinear device with named terminals given by its laws.
 
         **Arguments:**
@@ -339,15 +373,25 @@ class Circuit:
         """
         owner = self._start("device", name)
         _check_laws(owner, currents, charges, what=("currents", "charges"))
-        pairs = self._terminals(owner, terminals, tuple(terminals or ()))
+        pairs = self._terminals(owner, terminals, None)
         for pair in junctions:
             if len(pair) != 2 or any(t not in dict(pairs) for t in pair):
-                raise ModelError(f"{owner} junction {pair!r} must be a pair of its terminals "
-                                 f"{[t for t, _ in pairs]}.")
+                raise ModelError(
+                    f"{owner} junction {pair!r} must be a pair of its terminals "
+                    f"{[t for t, _ in pairs]}."
+                )
         with self._transaction():
             pmap = self._device_params(owner, name, params, units)
-            return self._add(Device(name, pairs, currents, charges, pmap,
-                                    junctions=tuple(tuple(j) for j in junctions)))
+            return self._add(
+                Device(
+                    name,
+                    pairs,
+                    currents,
+                    charges,
+                    pmap,
+                    junctions=tuple(tuple(j) for j in junctions),
+                )
+            )
 
     def diode(self, name: str, anode: str, cathode: str, **law_params: float | str) -> str:
         """A pn diode with the Shockley law of `adlin.devices`.
@@ -368,15 +412,35 @@ class Circuit:
         dev = laws.devices()
         values, ckeys, qkeys = laws.bind(owner, dev.diode_current, dev.diode_charge, law_params)
         current = functools.partial(laws.call_branch, dev.diode_current, ckeys)
-        charge = (None if qkeys is None
-                  else functools.partial(laws.call_branch, dev.diode_charge, qkeys))
+        charge = (
+            None if qkeys is None else functools.partial(laws.call_branch, dev.diode_charge, qkeys)
+        )
         with self._transaction():
             pmap = self._device_params(owner, name, values, None)
-            return self._add(TwoTerminal(name, a, k, current, charge, pmap, junction=True,
-                                         quantity_names=("i_d", "g_d", "c_d"), kind="diode"))
+            return self._add(
+                TwoTerminal(
+                    name,
+                    a,
+                    k,
+                    current,
+                    charge,
+                    pmap,
+                    junction=True,
+                    quantity_names=("i_d", "g_d", "c_d"),
+                    kind="diode",
+                )
+            )
 
-    def bjt(self, name: str, *, c: str | None = None, b: str | None = None,
-            e: str | None = None, polarity: str = "npn", **law_params: float | str) -> str:
+    def bjt(
+        self,
+        name: str,
+        *,
+        c: str | None = None,
+        b: str | None = None,
+        e: str | None = None,
+        polarity: str = "npn",
+        **law_params: float | str,
+    ) -> str:
         """A bipolar transistor with the Ebers-Moll law of `adlin.devices`.
 
         Adds the base-emitter and base-collector junctions for Newton step
@@ -398,17 +462,39 @@ class Circuit:
         values, ckeys, qkeys = laws.bind(owner, dev.bjt_currents, dev.bjt_charges, law_params)
         order = ("c", "b", "e")
         current = functools.partial(laws.call_terminals, dev.bjt_currents, order, sign, ckeys)
-        charge = (None if qkeys is None else
-                  functools.partial(laws.call_terminals, dev.bjt_charges, order, sign, qkeys))
+        charge = (
+            None
+            if qkeys is None
+            else functools.partial(laws.call_terminals, dev.bjt_charges, order, sign, qkeys)
+        )
         junctions = (("b", "e"), ("b", "c")) if sign > 0 else (("e", "b"), ("c", "b"))
         with self._transaction():
             pmap = self._device_params(owner, name, values, None)
-            return self._add(Device(name, pairs, current, charge, pmap, junctions=junctions,
-                                    summary=bjt_summary, kind="bjt"))
+            return self._add(
+                Device(
+                    name,
+                    pairs,
+                    current,
+                    charge,
+                    pmap,
+                    junctions=junctions,
+                    summary=bjt_summary,
+                    kind="bjt",
+                )
+            )
 
-    def mosfet(self, name: str, *, d: str | None = None, g: str | None = None,
-               s: str | None = None, b: str | None = None, polarity: str = "nmos",
-               law: str = "ekv", **law_params: float | str) -> str:
+    def mosfet(
+        self,
+        name: str,
+        *,
+        d: str | None = None,
+        g: str | None = None,
+        s: str | None = None,
+        b: str | None = None,
+        polarity: str = "nmos",
+        law: str = "ekv",
+        **law_params: float | str,
+    ) -> str:
         """A MOSFET with the EKV or square law of `adlin.devices`.
 
         `small_signal` reports ``i_d, g_m, g_ds, g_mb`` and, with charges,
@@ -438,12 +524,16 @@ class Circuit:
         values, ckeys, qkeys = laws.bind(owner, choices[law], dev.mosfet_charges, law_params)
         order = ("d", "g", "s", "b")
         current = functools.partial(laws.call_terminals, choices[law], order, sign, ckeys)
-        charge = (None if qkeys is None else
-                  functools.partial(laws.call_terminals, dev.mosfet_charges, order, sign, qkeys))
+        charge = (
+            None
+            if qkeys is None
+            else functools.partial(laws.call_terminals, dev.mosfet_charges, order, sign, qkeys)
+        )
         with self._transaction():
             pmap = self._device_params(owner, name, values, None)
-            return self._add(Device(name, pairs, current, charge, pmap, summary=mosfet_summary,
-                                    kind="mosfet"))
+            return self._add(
+                Device(name, pairs, current, charge, pmap, summary=mosfet_summary, kind="mosfet")
+            )
 
     # -- outputs and building ----------------------------------------------------
     def output(self, name: str, what: Any, *, unit: str | None = None) -> str:
@@ -497,7 +587,7 @@ class Circuit:
         if self._cache is not None and self._cache[0] == self._version:
             return self._cache[1]
         system, assembly = self._build()
-        table = jax.jit(functools.partial(_small_signal_table, assembly))
+        table = jax.jit(functools.partial(small_signal_table, assembly))
         self._cache = (self._version, system, assembly, table)
         return system
 
@@ -522,15 +612,17 @@ class Circuit:
         """
         system = self.build()
         assert self._cache is not None
-        x = _bias_vector(op, system.unknowns)
+        x = bias_vector(op, system.unknowns)
         if params is None and isinstance(getattr(op, "params", None), Mapping):
             params = op.params
         return self._cache[3](x, system.param_dict(system.param_vector(params)))
 
     def __repr__(self) -> str:
-        return (f"Circuit({self.name!r}: {len(self._nodes)} nodes, {len(self._elements)} "
-                f"elements, {len(self._values.params)} params, {len(self._values.inputs)} "
-                "inputs)")
+        return (
+            f"Circuit({self.name!r}: {len(self._nodes)} nodes, {len(self._elements)} "
+            f"elements, {len(self._values.params)} params, {len(self._values.inputs)} "
+            "inputs)"
+        )
 
     # -- internals -----------------------------------------------------------------
     def _build(self) -> tuple[System, Assembly]:
@@ -538,17 +630,19 @@ class Circuit:
             raise ModelError(f"circuit {self.name!r} has no elements; add some before build().")
         for element in self._elements.values():
             element.check(self._elements)
-        self._check_connected()
-        branches = [e.name for e in self._elements.values() if e.has_branch]
+        elements = tuple(self._elements.values())
+        check_connected(self.name, elements, tuple(self._nodes), self.ground)
+        branches = [e.name for e in elements if e.has_branch]
         layout = Layout(tuple(self._nodes), branches, self.ground, tuple(self._values.inputs))
-        self._check_names(layout)
+        check_names(layout, self._values)
         probes, units = [], {}
         for out_name, (what, unit) in self._outputs.items():
-            probe, natural = make_probe(out_name, what, layout, self._canon,
-                                        tuple(self._values.inputs))
+            probe, natural = make_probe(
+                out_name, what, layout, self._canon, tuple(self._values.inputs)
+            )
             probes.append(probe)
             units[out_name] = natural if unit is None else unit
-        assembly = Assembly(layout, tuple(self._elements.values()), probes)
+        assembly = Assembly(layout, elements, probes)
         units.update({u: ("V" if u.startswith("v_") else "A") for u in layout.unknowns})
         units.update(self._values.units)
         system = System(
@@ -560,7 +654,7 @@ class Circuit:
             outputs=tuple(self._outputs),
             params=dict(self._values.params),
             units=units,
-            junctions=self._junctions(layout),
+            junctions=junction_table(elements, layout, self._values),
             name=self.name,
         )
         x0 = jnp.zeros((layout.n,))
@@ -570,65 +664,14 @@ class Circuit:
         jax.eval_shape(system.g, x0, u0, p0)
         return system, assembly
 
-    def _check_connected(self) -> None:
-        parent: dict[str, str] = {}
-
-        def root(node):
-            while parent.setdefault(node, node) != node:
-                node = parent[node]
-            return node
-
-        for element in self._elements.values():
-            nodes = element.connections()
-            for other in nodes[1:]:
-                parent[root(other)] = root(nodes[0])
-        if self.ground not in parent:
-            raise FloatingNodeError(
-                f"no element of circuit {self.name!r} connects to ground {self.ground!r}; "
-                "connect at least one node to ground (e.g. the minus side of the supply).")
-        floating = [n for n in self._nodes if root(n) != root(self.ground)]
-        if floating:
-            raise FloatingNodeError(
-                f"nodes {floating} are not connected to ground {self.ground!r} through any "
-                "element (sensing terminals of controlled sources do not count); add a path "
-                "to ground, e.g. a large resistor.")
-
-    def _check_names(self, layout: Layout) -> None:
-        taken = {f"v_{node}": f"the voltage unknown of node {node!r}" for node in layout.nodes}
-        taken.update({f"i_{e}": f"the branch current unknown of element {e!r}"
-                      for e in layout.branches})
-        for kind, names in (("input", self._values.inputs), ("parameter", self._values.params)):
-            for name in names:
-                if name in taken:
-                    raise ModelError(f"{kind} {name!r} has the same name as {taken[name]}; "
-                                     f"rename the {kind} (e.g. {name + '_src'!r}) or the node.")
-
-    def _junctions(self, layout: Layout) -> tuple[Junction, ...]:
-        out = []
-        for element in self._elements.values():
-            refs = element.refs()
-            for anode, cathode, label in element.junction_pairs():
-                if anode == cathode:
-                    continue  # a shorted junction never needs limiting
-                vals = {k: (self._values.default(refs[k]) if k in refs else d)
-                        for k, d in _JUNCTION_DEFAULTS.items()}
-                bad = [k for k, v in vals.items() if not v > 0]
-                if bad:
-                    raise ModelError(f"junction {label!r} needs a positive {bad[0]} (default "
-                                     f"value {vals[bad[0]]!r}) to set its Newton step limits.")
-                nvt, vcrit = junction_limits(vals["saturation_current"],
-                                             vals["emission_coefficient"], vals["temperature"])
-                out.append(Junction(anode=layout.unknown_of_node(anode),
-                                    cathode=layout.unknown_of_node(cathode),
-                                    thermal_voltage=nvt, critical_voltage=vcrit, label=label))
-        return tuple(out)
-
     def _start(self, kind: str, name: Any) -> str:
         if not isinstance(name, str) or not name:
             raise ModelError(f"a {kind} needs a name (a non-empty string), got {name!r}.")
         if name in self._elements:
-            raise ModelError(f"element name {name!r} is used twice (first by "
-                             f"{self._elements[name].describe()}); give the {kind} another name.")
+            raise ModelError(
+                f"element name {name!r} is used twice (first by "
+                f"{self._elements[name].describe()}); give the {kind} another name."
+            )
         return f"{kind} {name!r}"
 
     def _canon(self, node: Any) -> Any:
@@ -636,43 +679,68 @@ class Circuit:
 
     def _node(self, owner: str, node: Any, what: str) -> str:
         if not isinstance(node, str) or not node:
-            raise ModelError(f"{owner} {what} must be a node name (a non-empty string), "
-                             f"got {node!r}.")
+            raise ModelError(
+                f"{owner} {what} must be a node name (a non-empty string), got {node!r}."
+            )
         return self._canon(node)
 
     def _two_nodes(self, owner: str, a: Any, b: Any, what: str = "terminal") -> tuple[str, str]:
         a, b = self._node(owner, a, what), self._node(owner, b, what)
         if a == b:
             where = "ground" if a == self.ground else f"node {a!r}"
-            raise ModelError(f"{owner} has both {what}s on {where}, so it does nothing; "
-                             "connect one of them to another node.")
+            raise ModelError(
+                f"{owner} has both {what}s on {where}, so it does nothing; "
+                "connect one of them to another node."
+            )
         return a, b
 
-    def _terminals(self, owner: str, terminals: Any, order: tuple[str, ...]):
-        if not isinstance(terminals, Mapping) or len(order) < 2:
-            raise ModelError(f"{owner} needs terminals as a dict terminal -> node with at least "
-                             f"two entries, got {terminals!r}.")
+    def _terminals(self, owner: str, terminals: Any, order: tuple[str, ...] | None):
+        if isinstance(terminals, Mapping) and order is None:
+            order = tuple(terminals)
+        if not isinstance(terminals, Mapping) or order is None or len(order) < 2:
+            raise ModelError(
+                f"{owner} needs terminals as a dict terminal -> node with at least "
+                f"two entries, got {terminals!r}."
+            )
         missing = [t for t in order if terminals.get(t) is None]
         if missing:
-            raise ModelError(f"{owner} is missing terminal(s) {missing}; give a node name for "
-                             f"each of {list(order)}.")
+            raise ModelError(
+                f"{owner} is missing terminal(s) {missing}; give a node name for "
+                f"each of {list(order)}."
+            )
         pairs = []
         for t in order:
             if not isinstance(t, str) or not t:
                 raise ModelError(f"{owner} terminal names must be non-empty strings, got {t!r}.")
             pairs.append((t, self._node(owner, terminals[t], f"terminal {t!r}")))
         if len({node for _, node in pairs}) == 1:
-            raise ModelError(f"{owner} has all its terminals on node {pairs[0][1]!r}, so it "
-                             "does nothing; connect them to different nodes.")
+            raise ModelError(
+                f"{owner} has all its terminals on node {pairs[0][1]!r}, so it "
+                "does nothing; connect them to different nodes."
+            )
         return tuple(pairs)
 
-    def _value(self, owner: str, what: str, value: Any, new_name: str, unit: str, *,
-               allow_input: bool = True) -> Ref:
-        return self._values.resolve(value, owner=owner, what=what, new_name=new_name,
-                                    unit=unit, allow_input=allow_input)
+    def _value(
+        self,
+        owner: str,
+        what: str,
+        value: Any,
+        new_name: str,
+        unit: str,
+        *,
+        allow_input: bool = True,
+    ) -> Ref:
+        return self._values.resolve(
+            value, owner=owner, what=what, new_name=new_name, unit=unit, allow_input=allow_input
+        )
 
-    def _device_params(self, owner: str, name: str, params: Mapping[str, Any] | None,
-                       units: Mapping[str, str] | None) -> dict[str, Ref]:
+    def _device_params(
+        self,
+        owner: str,
+        name: str,
+        params: Mapping[str, Any] | None,
+        units: Mapping[str, str] | None,
+    ) -> dict[str, Ref]:
         if params is None:
             return {}
         if not isinstance(params, Mapping):
@@ -683,11 +751,13 @@ class Circuit:
         ordered = sorted(params.items(), key=lambda kv: not isinstance(kv[1], str))
         for local, value in ordered:
             if not isinstance(local, str) or not local:
-                raise ModelError(f"{owner} parameter names must be non-empty strings, "
-                                 f"got {local!r}.")
+                raise ModelError(
+                    f"{owner} parameter names must be non-empty strings, got {local!r}."
+                )
             unit = units.get(local, LAW_UNITS.get(local, ""))
-            pmap[local] = self._value(owner, f"parameter {local!r}", value, f"{name}.{local}",
-                                      unit, allow_input=False)
+            pmap[local] = self._value(
+                owner, f"parameter {local!r}", value, f"{name}.{local}", unit, allow_input=False
+            )
         return {local: pmap[local] for local in params}
 
     @contextlib.contextmanager
@@ -715,33 +785,3 @@ def _check_laws(owner: str, first, second, what=("current", "charge")) -> None:
     for label, fn in zip(what, (first, second), strict=True):
         if fn is not None and not callable(fn):
             raise ModelError(f"{owner} {label}= must be a function, got {fn!r}.")
-
-
-def _small_signal_table(assembly: Assembly, x, p) -> SmallSignal:
-    at = Bias(assembly.layout, x, None, p)
-    rows = {}
-    for element in assembly.elements:
-        quantities = element.small_signal(at)
-        if quantities is not None:
-            rows[element.name] = quantities
-    return make_table(rows)
-
-
-def _bias_vector(op: Any, unknowns: tuple[str, ...]):
-    if isinstance(op, (np.ndarray, jax.Array)):
-        if op.shape != (len(unknowns),):
-            raise ModelError(f"a bias vector must have shape ({len(unknowns)},) for the unknowns "
-                             f"{list(unknowns)}, got {op.shape}.")
-        return jnp.asarray(op)
-    values, missing = [], []
-    for name in unknowns:
-        try:
-            values.append(op[name])
-        except (KeyError, IndexError, TypeError):
-            missing.append(name)
-    if missing:
-        raise ModelError(f"the operating point has no value for unknown(s) {missing}; give "
-                         "every unknown of the circuit by name.")
-    if not any(isinstance(v, jax.core.Tracer) for v in values):
-        return jnp.asarray(np.asarray(values, dtype=np.float64))  # one transfer, no compile
-    return jnp.stack([jnp.asarray(v, dtype=jnp.float64) for v in values])

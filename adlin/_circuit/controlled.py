@@ -21,12 +21,16 @@ from .values import Ref
 def _check_control(owner: AbstractElement, control: str, elements) -> None:
     with_branch = [n for n, e in elements.items() if e.has_branch]
     if control not in elements or not elements[control].has_branch:
-        problem = ("there is no element of that name" if control not in elements
-                   else f"{elements[control].describe()} has no branch current")
+        problem = (
+            "there is no element of that name"
+            if control not in elements
+            else f"{elements[control].describe()} has no branch current"
+        )
         raise ModelError(
             f"{owner.describe()} is controlled by the current of {control!r}, but {problem}; "
             "current control needs an inductor, voltage source, vcvs or ccvs "
-            f"({did_you_mean(control, with_branch)}).")
+            f"({did_you_mean(control, with_branch)})."
+        )
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
@@ -51,8 +55,9 @@ class Vccs(AbstractElement):
         return {"transconductance": self.transconductance}
 
     def currents(self, at):
-        return _pair(at, self.a, self.b,
-                     at.value(self.transconductance) * (at.v(self.c) - at.v(self.d)))
+        return _pair(
+            at, self.a, self.b, at.value(self.transconductance) * (at.v(self.c) - at.v(self.d))
+        )
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
@@ -81,8 +86,10 @@ class Vcvs(AbstractElement):
         return {"gain": self.gain}
 
     def currents(self, at):
-        row = (at.branch_row(self.name),
-               at.v(self.a) - at.v(self.b) - at.value(self.gain) * (at.v(self.c) - at.v(self.d)))
+        row = (
+            at.branch_row(self.name),
+            at.v(self.a) - at.v(self.b) - at.value(self.gain) * (at.v(self.c) - at.v(self.d)),
+        )
         return _pair(at, self.a, self.b, at.i(self.name)) + [row]
 
 
@@ -135,6 +142,8 @@ class Ccvs(AbstractElement):
         _check_control(self, self.control, elements)
 
     def currents(self, at):
-        row = (at.branch_row(self.name), at.v(self.a) - at.v(self.b)
-               - at.value(self.transresistance) * at.i(self.control))
+        row = (
+            at.branch_row(self.name),
+            at.v(self.a) - at.v(self.b) - at.value(self.transresistance) * at.i(self.control),
+        )
         return _pair(at, self.a, self.b, at.i(self.name)) + [row]

@@ -60,6 +60,7 @@ class AbstractElement(abc.ABC):
 
     def check(self, elements: Mapping[str, AbstractElement]) -> None:
         """Build-time checks that need the other elements (default: none)."""
+        del elements
 
     @abc.abstractmethod
     def currents(self, at: Bias) -> Stamp:
@@ -164,7 +165,8 @@ class Inductor(AbstractElement):
     def currents(self, at):
         i = at.i(self.name)
         return _pair(at, self.a, self.b, i) + [
-            (at.branch_row(self.name), -(at.v(self.a) - at.v(self.b)))]
+            (at.branch_row(self.name), -(at.v(self.a) - at.v(self.b)))
+        ]
 
     def charges(self, at):
         return [(at.branch_row(self.name), at.value(self.inductance) * at.i(self.name))]
@@ -192,7 +194,8 @@ class VoltageSource(AbstractElement):
 
     def currents(self, at):
         return _pair(at, self.a, self.b, at.i(self.name)) + [
-            (at.branch_row(self.name), at.v(self.a) - at.v(self.b) - at.value(self.voltage))]
+            (at.branch_row(self.name), at.v(self.a) - at.v(self.b) - at.value(self.voltage))
+        ]
 
 
 @dataclasses.dataclass(frozen=True, eq=False)

@@ -31,7 +31,8 @@ def devices():
     except ImportError as err:  # pragma: no cover - depends on the installation
         raise ModelError(
             "the device laws in adlin.devices could not be imported; use c.two_terminal(...) "
-            f"or c.device(...) with your own law instead ({err}).") from err
+            f"or c.device(...) with your own law instead ({err})."
+        ) from err
     return module
 
 
@@ -44,8 +45,12 @@ def keywords(law: Callable) -> dict[str, Any]:
     return out
 
 
-def bind(owner: str, current_law: Callable, charge_law: Callable | None,
-         given: Mapping[str, Any]) -> tuple[dict[str, Any], tuple[str, ...], tuple[str, ...] | None]:
+Binding = tuple[dict[str, Any], tuple[str, ...], tuple[str, ...] | None]
+
+
+def bind(
+    owner: str, current_law: Callable, charge_law: Callable | None, given: Mapping[str, Any]
+) -> Binding:
     """Choose the law keywords an element will use and their values.
 
     **Returns:** ``(values, current_keys, charge_keys)`` where `values` maps each
@@ -90,8 +95,9 @@ def call_branch(law: Callable, keys: tuple[str, ...], v, p):
     return law(v, **{k: p[k] for k in keys})
 
 
-def call_terminals(law: Callable, terminals: tuple[str, ...], sign: int,
-                   keys: tuple[str, ...], v, p):
+def call_terminals(
+    law: Callable, terminals: tuple[str, ...], sign: int, keys: tuple[str, ...], v, p
+):
     """A multi-terminal law taking voltages in `terminals` order, returning a dict."""
     out = law(*(v[t] for t in terminals), polarity=sign, **{k: p[k] for k in keys})
     return dict(zip(terminals, out, strict=True))

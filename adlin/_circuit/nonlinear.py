@@ -37,8 +37,10 @@ Summary = Callable[[tuple[str, ...], Any, Any, Any, Any], Quantities]
 def _scalar(owner: AbstractElement, what: str, value):
     value = jnp.asarray(value)
     if value.shape != ():
-        raise ModelError(f"{owner.describe()} {what} has shape {value.shape}; the law must "
-                         "return one scalar per terminal (write float(...) or x[0] as needed).")
+        raise ModelError(
+            f"{owner.describe()} {what} has shape {value.shape}; the law must "
+            "return one scalar per terminal (write float(...) or x[0] as needed)."
+        )
     return value
 
 
@@ -130,29 +132,33 @@ class Device(AbstractElement):
         return dict(self.params)
 
     def junction_pairs(self):
-        return tuple((self.node_of(a), self.node_of(k), f"{self.name} {a}-{k}")
-                     for a, k in self.junctions)
+        return tuple(
+            (self.node_of(a), self.node_of(k), f"{self.name} {a}-{k}") for a, k in self.junctions
+        )
 
     def _voltages(self, at: Bias) -> dict[str, Any]:
         return {t: at.v(node) for t, node in self.terminals}
 
     def _collect(self, what: str, result) -> dict[str, Any]:
         if not isinstance(result, Mapping):
-            raise ModelError(f"{self.describe()} {what} law returned {type(result).__name__}; "
-                             "it must return a dict terminal -> value.")
+            raise ModelError(
+                f"{self.describe()} {what} law returned {type(result).__name__}; "
+                "it must return a dict terminal -> value."
+            )
         names = self.terminal_names
         for t in result:
             if t not in names:
-                raise ModelError(f"{self.describe()} {what} law returned a value for terminal "
-                                 f"{t!r}, which is not one of its terminals {list(names)}; "
-                                 "add it to the terminals mapping.")
+                raise ModelError(
+                    f"{self.describe()} {what} law returned a value for terminal "
+                    f"{t!r}, which is not one of its terminals {list(names)}; "
+                    "add it to the terminals mapping."
+                )
         return {t: _scalar(self, f"{what} at terminal {t!r}", v) for t, v in result.items()}
 
     def currents(self, at: Bias):
         if self.current_law is None:
             return []
-        out = self._collect("current", self.current_law(self._voltages(at),
-                                                         at.local(self.params)))
+        out = self._collect("current", self.current_law(self._voltages(at), at.local(self.params)))
         return [(at.row(self.node_of(t)), i) for t, i in out.items()]
 
     def charges(self, at: Bias):

@@ -13,7 +13,12 @@ from collections.abc import Mapping, Sequence
 from typing import Any
 
 import equinox as eqx
+import jax
+import jax.numpy as jnp
 import numpy as np
+
+from .._errors import ModelError
+from .assembly import Assembly, Bias
 
 Quantities = dict[str, tuple[Any, str]]
 
@@ -28,11 +33,13 @@ class SmallSignal(eqx.Module):
     values: dict[str, dict[str, Any]]
     unit_items: tuple[tuple[str, tuple[tuple[str, str], ...]], ...] = eqx.field(static=True)
 
+    # jax rebuilds dicts with sorted keys; unit_items keeps the reading order.
     def __getitem__(self, element: str) -> dict[str, Any]:
-        return self.values[element]
+        values = self.values[element]
+        return {q: values[q] for q, _ in dict(self.unit_items)[element]}
 
     def __iter__(self):
-        return iter(self.values)
+        return iter(self.keys())
 
     def __len__(self) -> int:
         return len(self.values)
@@ -40,11 +47,11 @@ class SmallSignal(eqx.Module):
     def __contains__(self, element: object) -> bool:
         return element in self.values
 
-    def keys(self):
-        return self.values.keys()
+    def keys(self) -> list[str]:
+        return [name for name, _ in self.unit_items]
 
-    def items(self):
-        return self.values.items()
+    def items(self) -> list[tuple[str, dict[str, Any]]]:
+        return [(name, self[name]) for name in self.keys()]
 
     @property
     def units(self) -> dict[str, dict[str, str]]:
@@ -53,7 +60,7 @@ class SmallSignal(eqx.Module):
     def __str__(self) -> str:
         units = self.units
         lines = []
-        for name, quantities in self.values.items():
+        for name, quantities in self.items():
             lines.append(f"{name}:")
             for q, value in quantities.items():
                 try:
@@ -66,8 +73,9 @@ class SmallSignal(eqx.Module):
 
 def make_table(per_element: Mapping[str, Quantities]) -> SmallSignal:
     values = {name: {q: v for q, (v, _) in qs.items()} for name, qs in per_element.items()}
-    units = tuple((name, tuple((q, u) for q, (_, u) in qs.items()))
-                  for name, qs in per_element.items())
+    units = tuple(
+        (name, tuple((q, u) for q, (_, u) in qs.items())) for name, qs in per_element.items()
+    )
     return SmallSignal(values=values, unit_items=units)
 
 
@@ -132,3 +140,40 @@ def mosfet_summary(terminals: Sequence[str], i, g, q, c) -> Quantities:
         out["c_gd"] = (-c[gt, d], "F")
         out["c_gb"] = (-c[gt, b], "F")
     return out
+
+
+def small_signal_table(assembly: Assembly, x, p) -> SmallSignal:
+    """The table of every element that has small-signal quantities, at x."""
+    at = Bias(assembly.layout, x, None, p)
+    rows = {}
+    for element in assembly.elements:
+        quantities = element.small_signal(at)
+        if quantities is not None:
+            rows[element.name] = quantities
+    return make_table(rows)
+
+
+def bias_vector(op: Any, unknowns: tuple[str, ...]):
+    """x from an operating point, a dict by unknown name, or x itself."""
+    if isinstance(op, (np.ndarray, jax.Array)):
+        if op.shape != (len(unknowns),):
+            raise ModelError(
+                f"a bias vector must have shape ({len(unknowns)},) for the "
+                f"unknowns {list(unknowns)}, got {op.shape}."
+            )
+        return jnp.asarray(op)
+    values, missing = [], []
+    for name in unknowns:
+        try:
+            values.append(op[name])
+        except (KeyError, IndexError, TypeError):
+            missing.append(name)
+    if missing:
+        raise ModelError(
+            f"the operating point has no value for unknown(s) {missing}; give "
+            "every unknown of the circuit by name."
+        )
+    try:  # concrete numbers: one transfer, no compilation
+        return jnp.asarray(np.asarray(values, dtype=np.float64))
+    except (jax.errors.TracerArrayConversionError, jax.errors.ConcretizationTypeError):
+        return jnp.stack([jnp.asarray(v, dtype=jnp.float64) for v in values])

@@ -83,19 +83,24 @@ class ValueTable:
         if not isinstance(name, str) or not name:
             raise ModelError(f"a {_kind_word(kind)} name must be a non-empty string, got {name!r}.")
         if name in self.params or name in self.inputs:
-            raise ModelError(f"{_kind_word(kind)} {name!r} is declared twice (it already exists "
-                             "as a parameter or input); choose another name.")
+            raise ModelError(
+                f"{_kind_word(kind)} {name!r} is declared twice (it already exists "
+                "as a parameter or input); choose another name."
+            )
         number = as_number(default)
         if number is None or not math.isfinite(number):
-            raise ModelError(f"{_kind_word(kind)} {name!r} needs a finite number as default "
-                             f"value, got {default!r}.")
+            raise ModelError(
+                f"{_kind_word(kind)} {name!r} needs a finite number as default "
+                f"value, got {default!r}."
+            )
         (self.params if kind == "param" else self.inputs)[name] = number
         if unit:
             self.units[name] = str(unit)
         return name
 
-    def resolve(self, value: Any, *, owner: str, what: str, new_name: str, unit: str,
-                allow_input: bool) -> Ref:
+    def resolve(
+        self, value: Any, *, owner: str, what: str, new_name: str, unit: str, allow_input: bool
+    ) -> Ref:
         """Turn an element value into a `Ref`, creating a parameter for a number.
 
         **Arguments:**
@@ -122,24 +127,29 @@ class ValueTable:
                     raise ModelError(
                         f"{owner} {what} refers to input {value!r}, but charges and fluxes "
                         "cannot depend on inputs (q(x, p) has no u); declare it with "
-                        f"c.param({value!r}, ...) instead.")
+                        f"c.param({value!r}, ...) instead."
+                    )
                 return Ref("input", value)
             known = list(self.params) + list(self.inputs)
             raise ParameterError(
                 f"{owner} {what} refers to {value!r}, which is neither a declared parameter nor "
                 f"an input; declare it first with c.param({value!r}, ...) or c.input(...) "
-                f"({did_you_mean(value, known)}).")
+                f"({did_you_mean(value, known)})."
+            )
         number = as_number(value)
         if number is None:
-            raise ModelError(f"{owner} {what} must be a number or the name of a declared "
-                             f"parameter, got {type(value).__name__} {value!r}.")
+            raise ModelError(
+                f"{owner} {what} must be a number or the name of a declared "
+                f"parameter, got {type(value).__name__} {value!r}."
+            )
         if not math.isfinite(number):
             raise ModelError(f"{owner} {what} must be finite, got {number!r}.")
         if new_name in self.params or new_name in self.inputs:
             raise ModelError(
                 f"{owner} would create parameter {new_name!r} for its {what}, but that name is "
                 f"already declared; pass the string {new_name!r} to use the declared one, or "
-                "rename the element.")
+                "rename the element."
+            )
         self.params[new_name] = number
         if unit:
             self.units[new_name] = unit
@@ -155,8 +165,9 @@ def thermal_voltage(temperature: float) -> float:
     return BOLTZMANN * temperature / ELEMENTARY_CHARGE
 
 
-def junction_limits(saturation_current: float, emission_coefficient: float,
-                    temperature: float) -> tuple[float, float]:
+def junction_limits(
+    saturation_current: float, emission_coefficient: float, temperature: float
+) -> tuple[float, float]:
     """Thermal voltage n V_T and critical voltage of a pn junction.
 
     The critical voltage ``n V_T ln(n V_T / (sqrt(2) I_s))`` is where the

@@ -6,7 +6,8 @@ derivatives of the law, not finite differences) and names the entries the
 way the textbook hybrid-pi and MOS small-signal models do. They are pure
 JAX, compiled with ``jax.jit`` on first use (a first eager evaluation would
 otherwise compile every primitive separately, which takes seconds), and work
-inside ``jax.jit``, ``jax.vmap`` and ``jax.grad`` of the caller.
+inside ``jax.jit``, ``jax.vmap`` and ``jax.grad`` of the caller. `law` and
+`polarity` are static (Python values), so a wrong polarity is still caught.
 """
 
 from __future__ import annotations
@@ -104,7 +105,7 @@ def diode_small_signal(v: ArrayLike, **params: Any) -> dict[str, Array]:
     return {"i_d": i_d, "g_d": g_d, "c_d": c_d}
 
 
-@jax.jit
+@functools.partial(jax.jit, static_argnames=("polarity",))
 def bjt_small_signal(
     v_c: ArrayLike, v_b: ArrayLike, v_e: ArrayLike, **params: Any
 ) -> dict[str, Array]:
@@ -165,7 +166,7 @@ def bjt_small_signal(
     }
 
 
-@functools.partial(jax.jit, static_argnames=("law",))
+@functools.partial(jax.jit, static_argnames=("law", "polarity"))
 def mosfet_small_signal(
     v_d: ArrayLike,
     v_g: ArrayLike,

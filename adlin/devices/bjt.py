@@ -79,7 +79,10 @@ def bjt_currents(
     **Returns:**
 
     ``(i_c, i_b, i_e)``: the currents in amperes flowing INTO the device at
-    the collector, base and emitter; ``i_c + i_b + i_e == 0`` exactly.
+    the collector, base and emitter. ``i_e`` is formed as ``-(i_c + i_b)``, so
+    ``(i_c + i_b) + i_e == 0`` exactly in eager evaluation; inside a larger
+    compiled program XLA may fuse and contract the arithmetic, and the sum is
+    then zero to a few units in the last place of the largest current.
     """
     p = check_polarity(polarity)
     v_be = p * (v_b - v_e)
