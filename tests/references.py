@@ -66,7 +66,9 @@ _BJT_Q = dict(
     grading_coefficient=0.33,
     forward_fraction=0.5,
 )
-_SQUARE = dict(transconductance_parameter=3e-4, threshold_voltage=0.45, channel_length_modulation=0.05)
+_SQUARE = dict(
+    transconductance_parameter=3e-4, threshold_voltage=0.45, channel_length_modulation=0.05
+)
 _EKV = dict(
     transconductance_parameter=3e-4,
     threshold_voltage=0.45,
@@ -106,8 +108,12 @@ DEVICE_JACOBIAN_CASES = [
     ("square-triode-reversed", "square_law_currents", (0.0, 1.5, 0.2, 0.0), _SQUARE),
     ("square-saturation-reversed", "square_law_currents", (0.0, 1.2, 1.5, 0.0), _SQUARE),
     ("square-cutoff", "square_law_currents", (1.0, 0.3, 0.0, 0.0), _SQUARE),
-    ("square-pmos-saturation", "square_law_currents", (-1.5, -1.2, 0.0, 0.0),
-     dict(_SQUARE, polarity=-1)),
+    (
+        "square-pmos-saturation",
+        "square_law_currents",
+        (-1.5, -1.2, 0.0, 0.0),
+        dict(_SQUARE, polarity=-1),
+    ),
     ("ekv-weak-inversion", "ekv_currents", (1.0, 0.2, 0.0, 0.0), _EKV),
     ("ekv-moderate-inversion", "ekv_currents", (1.0, 0.55, 0.0, 0.0), _EKV),
     ("ekv-strong-saturation", "ekv_currents", (1.5, 1.5, 0.0, 0.0), _EKV),
@@ -198,8 +204,9 @@ def _bjt_charges(v_c, v_b, v_e, p):
     s = p.get("polarity", 1)
     v_be, v_bc = s * (v_b - v_e), s * (v_b - v_c)
     i_cc, i_ec = _bjt_transport(v_be, v_bc, p)
-    shape = [_exact(p[k]) for k in ("built_in_potential", "grading_coefficient",
-                                    "forward_fraction")]
+    shape = [
+        _exact(p[k]) for k in ("built_in_potential", "grading_coefficient", "forward_fraction")
+    ]
     q_be = _depletion_charge(v_be, _exact(p["base_emitter_capacitance"]), *shape)
     q_bc = _depletion_charge(v_bc, _exact(p["base_collector_capacitance"]), *shape)
     q_be += _exact(p["forward_transit_time"]) * i_cc

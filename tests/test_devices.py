@@ -16,9 +16,9 @@ import pytest
 import scipy.constants
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from references import DEVICE_JACOBIAN_CASES, device_reference
 
 import adlin.devices as dev
-from references import DEVICE_JACOBIAN_CASES, device_reference
 
 VT_300 = scipy.constants.k * 300.15 / scipy.constants.e
 
@@ -102,15 +102,19 @@ def test_limited_exp_is_c1_at_threshold():
 @jax.jit
 def _far_forward(v):
     q = dict(zero_bias_capacitance=1e-12, transit_time=1e-9)
-    return jnp.stack([
-        dev.diode_current(v),
-        jax.grad(dev.diode_current)(v),
-        dev.diode_charge(v, **q),
-        jax.grad(lambda x: dev.diode_charge(x, **q))(v),
-        *dev.bjt_currents(v, v, 0.0),
-        *jax.jacfwd(lambda b: jnp.stack(dev.bjt_currents(0.0, b, 0.0)))(v),
-        *dev.bjt_charges(0.0, v, 0.0, forward_transit_time=1e-10, base_emitter_capacitance=1e-12),
-    ])
+    return jnp.stack(
+        [
+            dev.diode_current(v),
+            jax.grad(dev.diode_current)(v),
+            dev.diode_charge(v, **q),
+            jax.grad(lambda x: dev.diode_charge(x, **q))(v),
+            *dev.bjt_currents(v, v, 0.0),
+            *jax.jacfwd(lambda b: jnp.stack(dev.bjt_currents(0.0, b, 0.0)))(v),
+            *dev.bjt_charges(
+                0.0, v, 0.0, forward_transit_time=1e-10, base_emitter_capacitance=1e-12
+            ),
+        ]
+    )
 
 
 @pytest.mark.parametrize("v", [10.0, 100.0, 1e4])
@@ -126,8 +130,12 @@ def test_depletion_charge_continuity_at_forward_fraction():
     """Charge and capacitance are continuous where the capacitance is linearised
     (v = F V_j; Massobrio & Antognetti, 2nd ed., ch. 1, from memory), and the
     capacitance there equals C_j0 / (1 - F)^m."""
-    p = dict(zero_bias_capacitance=1e-12, built_in_potential=0.8, grading_coefficient=0.4,
-             forward_fraction=0.5)
+    p = dict(
+        zero_bias_capacitance=1e-12,
+        built_in_potential=0.8,
+        grading_coefficient=0.4,
+        forward_fraction=0.5,
+    )
     edge = 0.4
     q = lambda v: dev.depletion_charge(v, **p)
     c = jax.grad(q)
@@ -142,8 +150,14 @@ def test_depletion_charge_continuity_at_forward_fraction():
 def test_diode_small_signal():
     """g_d = (i + I_S) / (n V_T) and c_d = C_j0 / (1 - v/V_j)^m + tau g_d
     (Sedra & Smith, 7th ed., secs. 3.6 and 4.3)."""
-    p = dict(saturation_current=1e-14, emission_coefficient=1.5, zero_bias_capacitance=1e-12,
-             built_in_potential=0.7, grading_coefficient=0.5, transit_time=4e-9)
+    p = dict(
+        saturation_current=1e-14,
+        emission_coefficient=1.5,
+        zero_bias_capacitance=1e-12,
+        built_in_potential=0.7,
+        grading_coefficient=0.5,
+        transit_time=4e-9,
+    )
     s = dev.diode_small_signal(0.3, **p)
     g = (float(s["i_d"]) + 1e-14) / (1.5 * VT_300)
     assert float(s["g_d"]) == pytest.approx(g, rel=1e-14)
@@ -188,12 +202,18 @@ def test_ebers_moll_early_effect_form():
 def test_bjt_capacitances():
     """C_pi = C_je/(1 - v_be/V_j)^m + tau_F g_m, C_mu = C_jc/(1 - v_bc/V_j)^m
     (Gray, Hurst, Lewis & Meyer, 5th ed., secs. 1.2 and 1.4)."""
-    p = dict(base_emitter_capacitance=1e-12, base_collector_capacitance=0.3e-12,
-             forward_transit_time=2e-10, built_in_potential=0.9, grading_coefficient=0.33)
+    p = dict(
+        base_emitter_capacitance=1e-12,
+        base_collector_capacitance=0.3e-12,
+        forward_transit_time=2e-10,
+        built_in_potential=0.9,
+        grading_coefficient=0.33,
+    )
     s = dev.bjt_small_signal(3.0, 0.4, 0.0, **p)
     g_m = float(s["g_m"])
-    assert float(s["c_be"]) == pytest.approx(1e-12 / (1 - 0.4 / 0.9) ** 0.33 + 2e-10 * g_m,
-                                             rel=1e-12)
+    assert float(s["c_be"]) == pytest.approx(
+        1e-12 / (1 - 0.4 / 0.9) ** 0.33 + 2e-10 * g_m, rel=1e-12
+    )
     assert float(s["c_bc"]) == pytest.approx(0.3e-12 / (1 + 2.6 / 0.9) ** 0.33, rel=1e-12)
 
 
@@ -216,8 +236,9 @@ def test_square_law_regions():
     i_d, i_g, i_s, i_b = _sq(2.0, 1.3)
     assert float(i_d) == pytest.approx(KP / 2 * 0.8**2 * (1 + LAM * 2.0), rel=1e-15)
     assert float(i_s) == -float(i_d) and float(i_g) == 0.0 and float(i_b) == 0.0
-    assert float(_sq(0.3, 1.3)[0]) == pytest.approx(KP * (0.8 * 0.3 - 0.045) * (1 + LAM * 0.3),
-                                                    rel=1e-15)
+    assert float(_sq(0.3, 1.3)[0]) == pytest.approx(
+        KP * (0.8 * 0.3 - 0.045) * (1 + LAM * 0.3), rel=1e-15
+    )
     assert float(_sq(2.0, 0.4)[0]) == 0.0
     assert float(jax.grad(lambda vg: _sq(2.0, vg)[0])(0.4)) == 0.0
 
@@ -244,9 +265,18 @@ def test_square_law_symmetry_and_zero_bias_conductance():
     assert float(rev) == -float(fwd)
     g_ds = jax.grad(lambda vd: _sq(vd, 1.5, 0.2)[0])(0.2)
     assert float(g_ds) == pytest.approx(KP * (1.5 - 0.2 - VTH), rel=1e-15)
-    s = dev.mosfet_small_signal(1.5, 1.3, 0.0, 0.0, law="square", transconductance_parameter=KP,
-                                threshold_voltage=VTH, channel_length_modulation=LAM,
-                                gate_source_capacitance=3e-15, drain_bulk_capacitance=1e-15)
+    s = dev.mosfet_small_signal(
+        1.5,
+        1.3,
+        0.0,
+        0.0,
+        law="square",
+        transconductance_parameter=KP,
+        threshold_voltage=VTH,
+        channel_length_modulation=LAM,
+        gate_source_capacitance=3e-15,
+        drain_bulk_capacitance=1e-15,
+    )
     assert float(s["g_m"]) == pytest.approx(KP * 0.8 * (1 + LAM * 1.5), rel=1e-15)
     assert float(s["g_ds"]) == pytest.approx(KP / 2 * 0.64 * LAM, rel=1e-14)
     assert float(s["c_gs"]) == 3e-15 and float(s["c_db"]) == 1e-15 and float(s["c_gd"]) == 0.0
@@ -282,8 +312,17 @@ def test_ekv_strong_inversion_approaches_square_law(overdrive, bound):
     """Strong-inversion saturation: I_D -> beta/(2n)(v_gs - V_T0)^2 with the source at the
     bulk (EKV 1995, strong-inversion asymptote), within the stated bounds."""
     beta, n, vt0 = 2e-4, 1.3, 0.5
-    i_d = float(dev.ekv_currents(3.0, vt0 + overdrive, 0.0, 0.0, transconductance_parameter=beta,
-                                 slope_factor=n, threshold_voltage=vt0)[0])
+    i_d = float(
+        dev.ekv_currents(
+            3.0,
+            vt0 + overdrive,
+            0.0,
+            0.0,
+            transconductance_parameter=beta,
+            slope_factor=n,
+            threshold_voltage=vt0,
+        )[0]
+    )
     square = beta / (2 * n) * overdrive**2
     assert 0.0 < i_d / square - 1 < bound
 
@@ -302,11 +341,19 @@ def test_ekv_matches_square_law_for_unit_slope():
 
 _FOUR_TERMINAL = [dev.square_law_currents, dev.ekv_currents, dev.mosfet_charges]
 _THREE_TERMINAL = [dev.bjt_currents, dev.bjt_charges]
-_CHARGES = dict(base_emitter_capacitance=1e-12, base_collector_capacitance=0.4e-12,
-                forward_transit_time=1e-10, reverse_transit_time=1e-8)
-_MOS_CHARGES = dict(gate_source_capacitance=2e-15, gate_drain_capacitance=1e-15,
-                    gate_bulk_capacitance=0.5e-15, drain_bulk_capacitance=1e-15,
-                    source_bulk_capacitance=1e-15)
+_CHARGES = dict(
+    base_emitter_capacitance=1e-12,
+    base_collector_capacitance=0.4e-12,
+    forward_transit_time=1e-10,
+    reverse_transit_time=1e-8,
+)
+_MOS_CHARGES = dict(
+    gate_source_capacitance=2e-15,
+    gate_drain_capacitance=1e-15,
+    gate_bulk_capacitance=0.5e-15,
+    drain_bulk_capacitance=1e-15,
+    source_bulk_capacitance=1e-15,
+)
 
 
 def _params(fn):

@@ -135,8 +135,12 @@ def depletion_charge(
     The depletion charge in coulombs (zero at ``v = 0``), same shape as `v`.
     """
     v = jnp.asarray(v)
-    c0, vj, m, f = (zero_bias_capacitance, built_in_potential, grading_coefficient,
-                    forward_fraction)
+    c0, vj, m, f = (
+        zero_bias_capacitance,
+        built_in_potential,
+        grading_coefficient,
+        forward_fraction,
+    )
     v_edge = f * vj
     below = v < v_edge
     # Only evaluate the power law where it is defined, so that its gradient in

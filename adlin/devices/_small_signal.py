@@ -51,8 +51,7 @@ def _split(params: dict[str, Any], *fns: Callable) -> list[dict[str, Any]]:
             close = difflib.get_close_matches(name, sorted(known), n=1)
             hints.append(f"{name!r}" + (f" (did you mean {close[0]!r}?)" if close else ""))
         raise TypeError(
-            f"unknown device parameter(s) {', '.join(hints)}; "
-            f"accepted: {', '.join(sorted(known))}."
+            f"unknown device parameter(s) {', '.join(hints)}; accepted: {', '.join(sorted(known))}."
         )
     return [{k: v for k, v in params.items() if k in n} for n in names]
 
@@ -214,9 +213,7 @@ def mosfet_small_signal(
         return current_law(v_s + v_ds, v_s + v_gs, v_s, v_s + v_bs, **current_params)
 
     (i_d, *_), g = _value_and_jacobian(currents, v_g - v_s, v_d - v_s, v_b - v_s)
-    _, c = _value_and_jacobian(
-        lambda *v: mosfet_charges(*v, **charge_params), v_d, v_g, v_s, v_b
-    )
+    _, c = _value_and_jacobian(lambda *v: mosfet_charges(*v, **charge_params), v_d, v_g, v_s, v_b)
     d, gate, s, b = 0, 1, 2, 3
     return {
         "i_d": i_d,

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import math
 
-import jax.numpy as jnp
 from jax import Array
 from jax.typing import ArrayLike
 

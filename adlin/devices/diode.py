@@ -23,8 +23,9 @@ def diode_current(
     with the exponential continued linearly for ``v / (n V_T) > 80``
     (`limited_exp`), so that a Newton solver stepping to 10 V or 100 V sees
     finite currents and derivatives; ``exp - 1`` is evaluated as ``expm1`` so
-    the current keeps full relative accuracy near zero and in reverse bias. The saturation current is taken as given
-    at `temperature` (no temperature scaling of ``I_S``). Shockley, "The theory
+    the current keeps full relative accuracy near zero and in reverse bias.
+    The saturation current is taken as given at `temperature` (no
+    temperature scaling of ``I_S``). Shockley, "The theory
     of p-n junctions in semiconductors and p-n junction transistors", Bell
     System Technical Journal 28, 1949; Sedra & Smith, Microelectronic Circuits,
     7th ed., 2015, sec. 4.2 (from memory).
