@@ -7,6 +7,8 @@ functions that need them, so importing this module stays cheap.
 
 from __future__ import annotations
 
+import functools
+
 # ===========================================================================
 # Devices (adlin.devices): device laws re-derived in sympy from their sources
 # ===========================================================================
@@ -274,6 +276,20 @@ _DEVICE_REFERENCE_LAWS = {
 }
 
 
+@functools.cache
+def _device_reference_functions(law, n_voltages, params_items):
+    # Symbolic work (integration, differentiation) once per law and parameter
+    # set; the bias points are then evaluated by mpmath.
+    import sympy
+
+    symbols = sympy.symbols(f"v0:{n_voltages}", real=True)
+    exprs = sympy.Matrix(_DEVICE_REFERENCE_LAWS[law](*symbols, dict(params_items)))
+    jac = exprs.jacobian(symbols)
+    values = sympy.lambdify(symbols, list(exprs), modules="mpmath")
+    jacobian = sympy.lambdify(symbols, jac.tolist(), modules="mpmath")
+    return values, jacobian
+
+
 def device_reference(law, voltages, params):
     """Values and Jacobian of a device law, re-derived in sympy, at one bias point.
 
@@ -289,16 +305,11 @@ def device_reference(law, voltages, params):
     `DEVICE_DPS` digits: ``values[i]`` is terminal quantity ``i`` and
     ``jacobian[i][j]`` its derivative with respect to voltage ``j``.
     """
-    import sympy
+    import mpmath
 
-    symbols = sympy.symbols(f"v0:{len(voltages)}", real=True)
-    exprs = sympy.Matrix(_DEVICE_REFERENCE_LAWS[law](*symbols, params))
-    jac = exprs.jacobian(symbols)
-    point = {s: _exact(v) for s, v in zip(symbols, voltages, strict=True)}
-
-    def ev(e):
-        return sympy.N(sympy.sympify(e).subs(point), DEVICE_DPS)
-
-    values = [ev(e) for e in exprs]
-    jacobian = [[ev(jac[i, j]) for j in range(len(symbols))] for i in range(len(exprs))]
-    return values, jacobian
+    values, jacobian = _device_reference_functions(
+        law, len(voltages), tuple(sorted(params.items()))
+    )
+    with mpmath.workdps(DEVICE_DPS):
+        point = [mpmath.mpf(v) for v in voltages]  # exact binary values
+        return values(*point), jacobian(*point)

@@ -415,6 +415,47 @@ def test_grad_wrt_saturation_current_is_analytic():
     assert float(g_va) == 0.0
 
 
+@pytest.mark.parametrize(
+    "law, voltages, params",
+    [
+        pytest.param(*case[1:], id=case[0])
+        for case in DEVICE_JACOBIAN_CASES
+        if case[0]
+        in (
+            "diode-q-above-edge",
+            "bjt-saturation",
+            "bjt-q-saturation",
+            "square-triode",
+            "ekv-moderate-inversion",
+            "mos-q",
+        )
+    ],
+)
+def test_grad_wrt_every_parameter_is_finite_and_matches_finite_differences(law, voltages, params):
+    """jax.grad with respect to each float parameter is finite and agrees with a central
+    difference (relative step 1e-6, tolerance 1e-5) of the same law."""
+    dynamic = {k: float(v) for k, v in params.items() if k != "polarity"}
+    fn = getattr(dev, law)
+
+    def weighted(p):  # terminal quantities sum to zero (KCL): weight them instead
+        out = fn(*voltages, **p)
+        out = out if isinstance(out, tuple) else (out,)
+        return sum((k + 1.0) * x for k, x in enumerate(out))
+
+    grad = jax.jit(jax.grad(weighted))(dynamic)
+    f = jax.jit(weighted)
+    scale = abs(float(f(dynamic)))
+    for name, g in grad.items():
+        assert np.isfinite(float(g)), name
+        h = 1e-6 * max(abs(dynamic[name]), 1e-3)
+        up, down = dict(dynamic), dict(dynamic)
+        up[name] += h
+        down[name] -= h
+        fd = (float(f(up)) - float(f(down))) / (2 * h)
+        # Rounding error of the difference quotient is ~ eps * |f| / h.
+        assert float(g) == pytest.approx(fd, rel=1e-5, abs=1e-12 * scale / h), name
+
+
 def test_jit_matches_eager():
     """jax.jit gives the same numbers as eager evaluation (EKV 1995 law)."""
     args = (1.2, 0.9, 0.1, 0.0)
