@@ -64,12 +64,13 @@ class CompiledSystem:
         res = newton_solve(lambda x: s.f(x, u, p), x0, self.junctions, self.options)
         converged = res.status == 0
         # x is differentiable in (u, p) through the implicit function theorem:
-        # x_out = x* - J^-1 f(x*, u, p) with x* and J held constant has the value
-        # x* (f(x*) ~ 0; it is also one more Newton polish) and the exact
-        # derivative dx/dp = -J^-1 df/dp.
+        # x_out = x* - J^-1 f(x*, u, p) with x* and J = df/dx(x*) held constant
+        # is the final Newton update (x* passed the convergence test), and its
+        # derivative is exactly dx/dp = -J^-1 df/dp.
         xs = jax.lax.stop_gradient(res.x)
-        J = jax.lax.stop_gradient(jax.jacfwd(s.f)(xs, u, p))
-        step = jnp.linalg.solve(J, s.f(xs, u, p))
+        J = jax.lax.stop_gradient(res.jacobian)
+        f_star = s.f(xs, u, p)
+        step = jnp.linalg.solve(J, f_star)
         x = jnp.where(converged & jnp.all(jnp.isfinite(step)), xs - step, xs)
         return OperatingPoint(
             x=x,
@@ -80,7 +81,7 @@ class CompiledSystem:
             status=res.status,
             iterations=res.iterations,
             evaluations=res.evaluations,
-            residual_norm=jnp.max(jnp.abs(res.residual)),
+            residual_norm=jnp.max(jnp.abs(jax.lax.stop_gradient(f_star))),
             unknown_names=s.unknowns,
             input_names=s.inputs,
             output_names=s.outputs,
@@ -116,7 +117,7 @@ class CompiledSystem:
 
     def _poles(self, u, p, x0):
         op = self._solve(u, p, x0)
-        return self._linearize(op.x, u, p).poles_padded(), op.converged
+        return self._linearize(op.x, u, p).poles(), op.converged
 
     # -- conveniences -----------------------------------------------------
     def default_guess(self):

@@ -136,7 +136,7 @@ def test_guess_forms_and_operating_point_access():
     assert int(op2.iterations) <= 2
     assert float(op1["R"]) == 1e3 and float(op1["v_s"]) == 1.0
     assert op1.method == "newton"
-    assert float(op1.residual_norm) < 1e-15
+    assert float(op1.residual_norm) < 1e-12  # amperes, before the final update
     assert "v_a" in op1 and "nope" not in op1
     with pytest.raises(adlin.ParameterError, match="no quantity 'v_b'.*'v_a'"):
         op1["v_b"]

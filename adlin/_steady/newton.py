@@ -111,10 +111,11 @@ def limit_scale(table: JunctionTable, x, dx):
 
 
 class NewtonResult(eqx.Module):
-    x: jax.Array
+    x: jax.Array  # last iterate; on success, the point where convergence was declared
     status: jax.Array
     iterations: jax.Array
     residual: jax.Array  # f at x
+    jacobian: jax.Array  # df/dx at x (reused for the implicit-function step)
     update_ratio: jax.Array  # max |dx_i| / tol_i of the last Newton step
     residual_ratio: jax.Array  # max |f_i| / tol_i at x
     evaluations: jax.Array  # residual evaluations; a Jacobian counts as n of them
@@ -133,15 +134,16 @@ def newton_solve(
     junctions: JunctionTable,
     opts: NewtonOptions,
 ) -> NewtonResult:
-    """Solve fun(x) = 0 from x0. Pure JAX; never raises on non-convergence."""
-    n = x0.shape[0]
-    jac = jax.jacfwd(fun)
+    """Solve fun(x) = 0 from x0. Pure JAX; never raises on non-convergence.
 
-    def linear_step(x):
-        f = fun(x)
-        J = jac(x)
-        dx = jnp.linalg.solve(J, -f)
-        return f, J, dx
+    Convergence is declared at an iterate x whose Newton update and residual
+    are both within tolerance; that x, with f and df/dx there, is returned
+    (the caller's implicit-function step then applies the final update).
+    The model is traced twice (value+Jacobian, and value for the line search)
+    to keep compilation short.
+    """
+    n = x0.shape[0]
+    value_and_jac = jax.jacfwd(lambda x: (fun(x), fun(x)), has_aux=True)
 
     def merit(f, w):
         m = 0.5 * jnp.sum((w * f) ** 2)
@@ -152,7 +154,8 @@ def newton_solve(
 
     def body(state):
         x = state["x"]
-        f, J, dx = linear_step(x)
+        J, f = value_and_jac(x)
+        dx = jnp.linalg.solve(J, -f)
         f_tol, x_tol, row_scale = _tolerances(J, x, opts)
         finite = jnp.all(jnp.isfinite(f)) & jnp.all(jnp.isfinite(J))
         solved = jnp.all(jnp.isfinite(dx))
@@ -161,7 +164,7 @@ def newton_solve(
         converged = finite & solved & (upd_ratio <= 1.0) & (res_ratio <= 1.0)
 
         # globalized step
-        dx_safe = jnp.where(solved, dx, 0.0)
+        dx_safe = jnp.where(solved & finite, dx, 0.0)
         alpha0 = limit_scale(junctions, x, dx_safe)
         if opts.max_step is not None:
             big = jnp.max(jnp.abs(dx_safe))
@@ -178,19 +181,20 @@ def newton_solve(
             ok = merit(f_new, w) <= (1.0 - 2e-4 * alpha) * m0
             return {"alpha": alpha, "ok": ok, "tries": ls["tries"] + 1}
 
+        # no line search once converged: the caller takes the last step exactly
         ls = jax.lax.while_loop(
-            ls_cond, ls_body, {"alpha": alpha0, "ok": jnp.asarray(False), "tries": jnp.asarray(0)}
+            ls_cond, ls_body,
+            {"alpha": alpha0, "ok": converged | ~finite | ~solved, "tries": jnp.asarray(0)},
         )
-        # converged: take the full Newton step (quadratic convergence makes it harmless)
-        alpha = jnp.where(converged, 1.0, ls["alpha"])
-        x_new = x + alpha * dx_safe
         status = jnp.where(
             converged,
             SUCCESS,
             jnp.where(~finite, NOT_FINITE, jnp.where(~solved, SINGULAR_JACOBIAN, -1)),
         )
         return {
-            "x": jnp.where((status == SUCCESS) | (status < 0), x_new, x),
+            "x": jnp.where(status < 0, x + ls["alpha"] * dx_safe, x),
+            "f": f,
+            "J": J,
             "k": state["k"] + 1,
             "status": status,
             "evals": state["evals"] + 1 + n + ls["tries"],
@@ -200,6 +204,8 @@ def newton_solve(
 
     init = {
         "x": x0,
+        "f": jnp.zeros_like(x0),
+        "J": jnp.zeros((n, n), x0.dtype),
         "k": jnp.asarray(0),
         "status": jnp.asarray(-1),
         "evals": jnp.asarray(0),
@@ -212,8 +218,9 @@ def newton_solve(
         x=out["x"],
         status=status,
         iterations=out["k"],
-        residual=fun(out["x"]),
+        residual=out["f"],
+        jacobian=out["J"],
         update_ratio=out["upd"],
         residual_ratio=out["res"],
-        evaluations=out["evals"] + 1,
+        evaluations=out["evals"],
     )

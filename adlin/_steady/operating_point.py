@@ -23,7 +23,8 @@ class OperatingPoint(eqx.Module):
       tolerances.  `status`: 0 converged, 1 iteration limit, 2 singular
       Jacobian, 3 non-finite model value (see `message`).
     - `iterations`, `evaluations`: Newton iterations and residual evaluations.
-    - `residual_norm`: max |f_i| at x, in the equations' units (A for nodes).
+    - `residual_norm`: max |f_i| at the converged iterate, before the final
+      Newton update that gives x, in the equations' units (A for nodes).
     - `method`: the strategy that produced x.
 
     `op["v_out"]` reads an unknown, output, input or parameter by name.

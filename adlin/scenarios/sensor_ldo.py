@@ -187,32 +187,36 @@ def sensor_ldo_loop(
     inputs: dict[str, Any] | None = None,
     params: dict[str, Any] | None = None,
     f_hz: np.ndarray | None = None,
+    *,
+    op: Any = None,
 ) -> LoopGain:
     """Loop gain, crossover and phase margin of the regulator at its bias point.
 
-    Solves the closed loop, then the open loop with ``v_probe`` equal to the
-    closed-loop ``v_fb`` (same bias), and reads ``T = -d v_fb / d v_probe``.
+    Solves the closed loop (unless `op` is given), then the open loop with
+    ``v_probe`` equal to the closed-loop ``v_fb`` (same bias), and reads
+    ``T = -d v_fb / d v_probe``.
 
     **Arguments:**
 
-    - `inputs`, `params`: overrides for the closed-loop circuit.
+    - `inputs`, `params`: overrides for the closed-loop circuit (ignored when
+      `op` is given, which carries its own).
     - `f_hz`: frequency grid in Hz (default 1 Hz to 1 GHz, 50 points a decade).
+    - `op`: the closed-loop `OperatingPoint`, if already solved.
 
     **Returns:** a `LoopGain`.
     """
     from .._linear.linearize import linearize
     from .._steady.solve import steady_state
 
-    closed = sensor_ldo_system()
+    if op is None:
+        op = steady_state(sensor_ldo_system(), inputs=inputs, params=params)
+    inputs = {k: float(v) for k, v in op.inputs.items()}
+    params = {k: float(v) for k, v in op.params.items()}
     opened = sensor_ldo(open_loop=True).build()
-    op = steady_state(closed, inputs=inputs, params=params)
-    guess = {k: float(op[k]) for k in closed.unknowns if k in opened.unknowns}
-    guess["v_probe"] = float(op["v_fb"])
+    guess = {k: float(op[k]) for k in op.unknown_names if k in opened.unknowns}
+    guess["v_sense"] = float(op["v_fb"])
     op_open = steady_state(
-        opened,
-        inputs=dict(inputs or {}) | {"v_probe": float(op["v_fb"])},
-        params=params,
-        guess=guess,
+        opened, inputs=inputs | {"v_probe": float(op["v_fb"])}, params=params, guess=guess
     )
     lin = linearize(opened, op_open)
     i_probe = lin.input_names.index("v_probe")

@@ -1,0 +1,301 @@
+"""The ``adlin`` command: bias point, small-signal model and report of a circuit.
+
+    adlin demo [--plots DIR] [--json] [--set NAME=VALUE ...]
+    adlin analyze MODEL.py [--model NAME] [--set NAME=VALUE ...] [--guess NAME=VALUE ...]
+                           [--input NAME --output NAME] [--plots DIR] [--json]
+
+Errors caused by the model or the command line (every `adlin.AdlinError`, a
+missing model file, a malformed ``NAME=VALUE``) print one sentence to
+standard error and exit with status 2; anything else prints one line and
+exits with status 1.  ``--debug`` shows the traceback instead.
+
+Compiled programs are kept in a persistent JAX compilation cache, so a second
+run skips most of the compile time: ``$ADLIN_CACHE_DIR`` if set (an empty
+value turns the cache off), else ``$XDG_CACHE_HOME/adlin/jax`` or
+``~/.cache/adlin/jax``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import os
+import re
+import sys
+from collections.abc import Sequence
+from pathlib import Path
+
+PROG = "adlin"
+EXIT_USER = 2
+EXIT_INTERNAL = 1
+
+_PREFIX = {"T": 1e12, "G": 1e9, "M": 1e6, "k": 1e3, "m": 1e-3, "u": 1e-6, "µ": 1e-6,
+           "n": 1e-9, "p": 1e-12, "f": 1e-15}
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([TGMkmuµnpf]?)\s*$")
+
+
+class CommandError(Exception):
+    """A malformed command line that argparse itself does not catch."""
+
+
+# -- persistent compilation cache ---------------------------------------------------
+def cache_dir() -> Path | None:
+    """Where compiled programs are kept, or None when the cache is turned off."""
+    given = os.environ.get("ADLIN_CACHE_DIR")
+    if given is not None:
+        return Path(given).expanduser() if given.strip() else None
+    base = os.environ.get("XDG_CACHE_HOME") or str(Path.home() / ".cache")
+    return Path(base) / "adlin" / "jax"
+
+
+def configure_cache() -> Path | None:
+    """Point JAX's persistent compilation cache at `cache_dir()`.
+
+    Must run before the first compilation.  Every program is cached, however
+    small or quick to compile: the CLI compiles the same few programs on
+    every run.  A directory that cannot be created leaves the cache off.
+    """
+    import jax
+
+    path = cache_dir()
+    if path is None:
+        return None
+    try:
+        path.mkdir(parents=True, exist_ok=True)
+    except OSError:
+        return None
+    jax.config.update("jax_compilation_cache_dir", str(path))
+    jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.0)
+    jax.config.update("jax_persistent_cache_min_entry_size_bytes", -1)
+    return path
+
+
+# -- NAME=VALUE ---------------------------------------------------------------------
+def parse_number(text: str) -> float:
+    """A float, optionally with an SI prefix: '4.7u' -> 4.7e-6, '10k' -> 1e4.
+
+    **Raises:** `ValueError` for anything else (including 'inf' and 'nan').
+    """
+    m = _NUMBER.match(text)
+    if not m:
+        raise ValueError(text)
+    value = float(m.group(1)) * _PREFIX.get(m.group(2), 1.0)
+    if not math.isfinite(value):
+        raise ValueError(text)
+    return value
+
+
+def parse_assignments(items: Sequence[str] | None, option: str) -> dict[str, float]:
+    """``["R1=10k", "v_in=0.6"]`` -> ``{"R1": 1e4, "v_in": 0.6}``.
+
+    **Raises:** `CommandError` naming the malformed item.
+    """
+    out: dict[str, float] = {}
+    for item in items or ():
+        name, sep, value = item.partition("=")
+        name = name.strip()
+        if not sep or not name:
+            raise CommandError(f"{option} {item!r} is not NAME=VALUE; write it like "
+                               f"{option} R1=4.7k (SI prefixes T G M k m u n p f allowed).")
+        try:
+            out[name] = parse_number(value)
+        except ValueError:
+            raise CommandError(f"{option} {item!r}: {value.strip()!r} is not a finite number; "
+                               "write e.g. 4.7e3, 4.7k or 0.6.") from None
+    return out
+
+
+def split_settings(system, settings: dict[str, float]) -> tuple[dict[str, float],
+                                                                 dict[str, float]]:
+    """Route ``--set`` values to the System's inputs and parameters by name.
+
+    **Raises:** `ParameterError` for a name that is neither.
+    """
+    from .._errors import ParameterError, did_you_mean
+
+    inputs, params = {}, {}
+    valid = list(system.inputs) + list(system.param_names)
+    for name, value in settings.items():
+        if name in system.inputs:
+            inputs[name] = value
+        elif name in system.param_names:
+            params[name] = value
+        else:
+            raise ParameterError(f"--set {name}=...: {system.name!r} has no input or parameter "
+                                 f"{name!r}; {did_you_mean(name, valid)}.")
+    return inputs, params
+
+
+# -- the commands -------------------------------------------------------------------
+def _demo_notes(op) -> list:
+    from ..report import Quantity
+    from ..scenarios import ideal_output, sensor_ldo_loop
+
+    loop = sensor_ldo_loop(op=op)
+    ideal = ideal_output({k: float(v) for k, v in op.params.items()},
+                         {k: float(v) for k, v in op.inputs.items()})
+    out = float(op["v_out"])
+    notes = [
+        Quantity("ideal output v_ref (1 + R1/R2)", ideal, "V"),
+        Quantity("output error v_out - ideal", out - ideal, "V"),
+        Quantity("loop gain T(0)", loop.dc, ""),
+        Quantity("loop gain T(0) in dB", loop.dc_db, "dB"),
+        Quantity("bound on the error, ideal / (1 + T(0))", ideal / (1 + abs(loop.dc)), "V"),
+        Quantity("loop crossover frequency", loop.crossover_hz, "Hz"),
+        Quantity("phase margin", loop.phase_margin_deg, "deg"),
+    ]
+    return notes
+
+
+def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out=None) -> int:
+    """Solve, linearize, and print the report (text or JSON); write figures if asked."""
+    from .. import report
+    from .._linear.linearize import linearize
+    from .._steady.solve import steady_state
+
+    out = out or sys.stdout
+    inputs, params = split_settings(system, parse_assignments(args.set, "--set"))
+    guess = dict(guess or {})
+    guess.update(parse_assignments(getattr(args, "guess", None), "--guess"))
+    op = steady_state(system, inputs=inputs, params=params, guess=guess or None)
+    model = linearize(system, op)
+    devices = circuit.small_signal(op) if circuit is not None else None
+    notes = notes_for(op) if notes_for is not None else []
+    summary = report.summarize(system, op, model, devices=devices, input=args.input,
+                               output=args.output, notes=notes)
+    figures: list[Path] = []
+    if args.plots:
+        from ..report.figures import write_figures
+
+        try:
+            figures = write_figures(summary, args.plots)
+        except OSError as err:
+            raise CommandError(f"cannot write figures to '{args.plots}' "
+                               f"({err.strerror or err}); choose a writable directory "
+                               "with --plots DIR.") from err
+    if args.json:
+        from ..report.json import to_dict
+
+        import json
+
+        data = to_dict(summary)
+        data["figures"] = [str(p) for p in figures]
+        out.write(json.dumps(data, indent=2, allow_nan=False) + "\n")
+    else:
+        from ..report.text import make_console, render
+
+        console = make_console(out)
+        render(summary, console)
+        if figures:
+            console.print("Figures: " + ", ".join(str(p) for p in figures))
+    return 0
+
+
+def cmd_demo(args, out=None) -> int:
+    from ..scenarios import sensor_ldo
+
+    circuit = sensor_ldo()
+    return analyze_and_report(circuit.build(), circuit, args, notes_for=_demo_notes, out=out)
+
+
+def cmd_analyze(args, out=None) -> int:
+    from .model_file import load_model
+
+    loaded = load_model(args.model_file, args.model)
+    return analyze_and_report(loaded.system, loaded.circuit, args, out=out)
+
+
+# -- argument parsing ---------------------------------------------------------------
+class _Parser(argparse.ArgumentParser):
+    """argparse with one-line errors and our exit status."""
+
+    def error(self, message: str):  # type: ignore[override]
+        self.exit(EXIT_USER, f"{self.prog}: error: {message}; see '{self.prog} --help'.\n")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                        help="show full tracebacks on errors")
+    common.add_argument("--set", action="append", metavar="NAME=VALUE",
+                        help="override an input or parameter (repeatable; SI prefixes allowed, "
+                             "e.g. R1=4.7k)")
+    common.add_argument("--json", action="store_true",
+                        help="print the report as JSON instead of tables")
+    common.add_argument("--plots", metavar="DIR",
+                        help="write bode.png and poles_zeros.png into DIR")
+    common.add_argument("--input", metavar="NAME",
+                        help="input for the zero table and the Bode plot (default: all)")
+    common.add_argument("--output", metavar="NAME",
+                        help="output for the zero table and the Bode plot (default: all)")
+
+    parser = _Parser(
+        prog=PROG,
+        description="Bias point and exact small-signal model of a nonlinear circuit: poles, "
+                    "zeros, gains, device parameters and a normalized model.",
+        epilog="Results are models: measure prototypes; mains or high-energy designs follow "
+               "local electrical codes and licensed practice.",
+    )
+    parser.add_argument("--debug", action="store_true", default=False,
+                        help="show full tracebacks on errors")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    demo = sub.add_parser("demo", parents=[common],
+                          help="run the built-in sensor-node LDO regulator end to end",
+                          description="Bias point, device small-signal parameters, poles, "
+                                      "zeros, DC gains, normalized model and loop gain of "
+                                      "the built-in sensor-node LDO (Li-ion cell to 1.8 V).")
+    demo.set_defaults(func=cmd_demo, guess=None)
+    analyze = sub.add_parser("analyze", parents=[common],
+                             help="analyze a Python model file that defines a System or Circuit",
+                             description="Load MODEL.py (a module-level adlin.System or "
+                                         "adlin.Circuit, or a function returning one), find "
+                                         "its bias point and report its small-signal model.")
+    analyze.add_argument("model_file", metavar="MODEL.py", help="the Python model file")
+    analyze.add_argument("--model", metavar="NAME",
+                         help="which System, Circuit or function of the file to use")
+    analyze.add_argument("--guess", action="append", metavar="NAME=VALUE",
+                         help="starting value of an unknown for the bias-point solve "
+                              "(repeatable)")
+    analyze.set_defaults(func=cmd_analyze)
+    return parser
+
+
+def _one_line(text: str) -> str:
+    return " ".join(str(text).split())
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; returns the exit status."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help(sys.stderr)
+        return EXIT_USER
+    debug = bool(getattr(args, "debug", False))
+    from .._errors import AdlinError
+
+    try:
+        configure_cache()
+        return int(args.func(args))
+    except KeyboardInterrupt:
+        if debug:
+            raise
+        print(f"{PROG}: interrupted.", file=sys.stderr)
+        return 130
+    except (AdlinError, CommandError) as err:
+        if debug:
+            raise
+        print(f"{PROG}: error: {_one_line(err)}", file=sys.stderr)
+        return EXIT_USER
+    except Exception as err:  # a bug in adlin or a library: say so, without a traceback
+        if debug:
+            raise
+        text = _one_line(err)
+        text = text if len(text) <= 300 else text[:297] + "..."
+        print(f"{PROG}: internal error ({type(err).__name__}: {text}); run again with "
+              "--debug for the traceback and report it.", file=sys.stderr)
+        return EXIT_INTERNAL
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
