@@ -10,6 +10,7 @@ from ._errors import (
     ParameterError as ParameterError,
     SteadyStateError as SteadyStateError,
 )
+from . import devices as devices
 from ._system import Junction as Junction, System as System
 from ._circuit import Circuit as Circuit, SmallSignal as SmallSignal
 
