@@ -65,7 +65,8 @@ def central_fd(fun, x: np.ndarray) -> np.ndarray:
         xp, xm = x.copy(), x.copy()
         xp[j] += h
         xm[j] -= h
-        cols.append((np.asarray(fun(jnp.asarray(xp))) - np.asarray(fun(jnp.asarray(xm)))) / (xp[j] - xm[j]))
+        fp, fm = np.asarray(fun(jnp.asarray(xp))), np.asarray(fun(jnp.asarray(xm)))
+        cols.append((fp - fm) / (xp[j] - xm[j]))
     return np.stack(cols, axis=1)
 
 
@@ -73,7 +74,9 @@ def central_fd(fun, x: np.ndarray) -> np.ndarray:
 
 
 def measure(label: str, system: adlin.System) -> list[dict]:
+    t0 = time.perf_counter()
     op = adlin.steady_state(system)
+    t_op = time.perf_counter() - t0
     x, u, p = np.asarray(op.x), np.asarray(op.u), np.asarray(op.p)
     E, A, _, _, _ = adlin.compile(system).matrices(op.x, op.u, op.p)
     adlin_jac = {"df/dx": -np.asarray(A), "dq/dx": np.asarray(E)}
@@ -81,7 +84,8 @@ def measure(label: str, system: adlin.System) -> list[dict]:
               "dq/dx": central_fd(lambda xx: system.q(xx, op.p), x)}
 
     print(f"\n== {label}: {system.n} unknowns, operating point converged={bool(op.converged)} "
-          f"({int(op.iterations)} Newton iterations)")
+          f"({int(op.iterations)} Newton iterations; adlin.steady_state incl. compilation "
+          f"{t_op:.1f} s)")
     rows = []
     for what, fun, args in (("df/dx", system.f, (u, p)), ("dq/dx", system.q, (p,))):
         n_eqns = len(jax.make_jaxpr(fun)(x, *args).jaxpr.eqns)
@@ -89,11 +93,15 @@ def measure(label: str, system: adlin.System) -> list[dict]:
         t0 = time.perf_counter()
         J_exact = to_float(interp.jacobian())
         t_diff = time.perf_counter() - t0
-        value_gap = float(np.max(np.abs(to_float(interp.values()) - np.asarray(fun(x, *args)))))
-        print(f"  {what}: jaxpr of {n_eqns} top-level equations interpreted in {interp.seconds:.2f} s, "
-              f"sympy.diff + 50-digit evaluation {t_diff:.2f} s; "
-              f"max |value(sympy) - value(jax)| at x* = {value_gap:.1e}"
-              + (f"; ties: {interp.ties}" if interp.ties else ""))
+        value = np.asarray(fun(x, *args))
+        value_gap = float(np.max(np.abs(to_float(interp.values()) - value)))
+        print(f"  {what}: jaxpr of {n_eqns} top-level equations ({sum(interp.primitives.values())} "
+              f"incl. nested calls, {len(interp.primitives)} primitive kinds) interpreted in "
+              f"{interp.seconds:.2f} s; sympy.diff + 50-digit evaluation {t_diff:.2f} s")
+        fn = what[1]
+        print(f"         value check at x*: max |{fn}(sympy) - {fn}(jax)| = {value_gap:.1e}"
+              f" (max |{fn}| = {np.max(np.abs(value)):.1e}); branch ties: "
+              + (f"{interp.ties}" if interp.ties else "none"))
         for method, J in (("adlin (jax.jacfwd)", adlin_jac[what]), ("central FD", fd_jac[what])):
             rows.append(dict(model=label, matrix=what, method=method, **errors(J, J_exact)))
     return rows
@@ -129,8 +137,9 @@ def photodiode_bias() -> adlin.System:
 def main() -> None:
     from adlin.scenarios import sensor_ldo
 
-    print(f"jax {jax.__version__}, float64 eps = {np.finfo(np.float64).eps:.3e}; "
-          f"central-difference step eps^(1/3)*max(|x_j|,1) = {np.finfo(np.float64).eps ** (1 / 3):.2e}*max(|x_j|,1)")
+    eps = np.finfo(np.float64).eps
+    print(f"jax {jax.__version__}, float64 eps = {eps:.3e}; central-difference step "
+          f"eps^(1/3)*max(|x_j|,1) = {eps ** (1 / 3):.2e}*max(|x_j|,1)")
     rows = measure("sensor_ldo (demo)", sensor_ldo().build())
     rows += measure("diode_resistor (System, jnp.exp)", diode_resistor())
     rows += measure("photodiode_bias (Circuit, adlin.devices)", photodiode_bias())
@@ -152,7 +161,8 @@ def main() -> None:
         worst_fd = max(max(r["entry"], r["norm"]) for r in fd)
         spurious = sum(r["spurious"] for r in ad)
         met = worst <= TARGET and spurious == 0
-        print(f"{model}: adlin worst relative error {worst:.2e} over {sum(r['entries'] for r in ad)} "
+        n_entries = sum(r["entries"] for r in ad)
+        print(f"{model}: adlin worst relative error {worst:.2e} over {n_entries} "
               f"entries -> target <= {TARGET:.0e} {'MET' if met else 'NOT MET'}"
               f"{'' if spurious == 0 else f' ({spurious} spurious nonzeros)'}; "
               f"central FD worst {worst_fd:.2e} ({worst_fd / max(worst, 1e-300):.1e} x adlin)")

@@ -31,8 +31,9 @@ from __future__ import annotations
 import functools
 import math
 import time
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from typing import Any, Callable, Sequence
+from typing import Any
 
 import jax
 import jax.extend.core as jcore
@@ -41,6 +42,7 @@ import numpy as np
 import sympy
 
 DPS = 50  # decimal digits of every mpmath value and folded constant
+PREC = mpmath.libmp.dps_to_prec(DPS)  # the same in bits
 
 
 # -- elements ----------------------------------------------------------------
@@ -58,14 +60,7 @@ class El:
     def expr(self) -> sympy.Expr:
         if self.sym is not None:
             return self.sym
-        return sympy.Float._new(self.val._mpf_, mpmath.mp.prec)
-
-    # El arithmetic is what dot_general, reductions and scatter-add use.
-    def __add__(self, other: El) -> El:
-        return _add(self, other)
-
-    def __mul__(self, other: El) -> El:
-        return _mul(self, other)
+        return sympy.Float._new(self.val._mpf_, PREC)
 
     def __repr__(self) -> str:
         return f"El({self.sym!r}, {mpmath.nstr(self.val, 17)})"
@@ -96,10 +91,6 @@ _neg = _lift(lambda a: -a, lambda a: -a)
 
 def _logistic_mp(a):
     return 1 / (1 + mpmath.exp(-a))
-
-
-def _erf_inv_mp(a):
-    return mpmath.findroot(lambda t: mpmath.erf(t) - a, 0)
 
 
 _UNARY: dict[str, tuple[Callable, Callable]] = {
@@ -157,7 +148,7 @@ _COMPARE: dict[str, Callable] = {
 _PIECEWISE_CONSTANT: dict[str, Callable] = {
     "floor": mpmath.floor,
     "ceil": mpmath.ceil,
-    "round": lambda a: mpmath.floor(a + mpmath.mpf(0.5)) if a >= 0 else -mpmath.floor(-a + mpmath.mpf(0.5)),
+    "round": lambda a: mpmath.sign(a) * mpmath.floor(abs(a) + mpmath.mpf(0.5)),  # half away from 0
     "sign": lambda a: mpmath.mpf(mpmath.sign(a)),
 }
 
@@ -229,7 +220,7 @@ class Interpretation:
         n = len(self.symbols)
         J = _obj((out.size, n))
         J[...] = mpmath.mpf(0)
-        subs = dict(zip(self.symbols, self.point))
+        subs = dict(zip(self.symbols, self.point, strict=True))
         memo: dict = {}
         with mpmath.workdps(DPS):
             for i, e in enumerate(out):
@@ -297,7 +288,8 @@ def _evaluate(expr: sympy.Expr, subs: dict, memo: dict | None = None) -> mpmath.
 
 def to_float(a: np.ndarray) -> np.ndarray:
     """float64 copy of an object array of mpmath numbers (or of El)."""
-    flat = [float(e.val if isinstance(e, El) else e) for e in np.asarray(a, dtype=object).reshape(-1)]
+    items = np.asarray(a, dtype=object).reshape(-1)
+    flat = [float(e.val if isinstance(e, El) else e) for e in items]
     return np.array(flat, dtype=np.float64).reshape(np.shape(a))
 
 
@@ -383,11 +375,11 @@ class _Interpreter:
                 return
             env[v] = val
 
-        for v, c in zip(jaxpr.constvars, consts):
+        for v, c in zip(jaxpr.constvars, consts, strict=True):
             write(v, c if isinstance(c, np.ndarray) and c.dtype == object else _from_array(c))
         if len(args) != len(jaxpr.invars):
             raise ValueError(f"jaxpr takes {len(jaxpr.invars)} arguments, got {len(args)}")
-        for v, a in zip(jaxpr.invars, args):
+        for v, a in zip(jaxpr.invars, args, strict=True):
             write(v, a)
         for eqn in jaxpr.eqns:
             name = eqn.primitive.name
@@ -396,7 +388,7 @@ class _Interpreter:
             outs = self.apply(eqn, ins)
             if not eqn.primitive.multiple_results:
                 outs = [outs]
-            for v, o in zip(eqn.outvars, outs):
+            for v, o in zip(eqn.outvars, outs, strict=True):
                 write(v, self._conform(o, v.aval))
         return [read(v) for v in jaxpr.outvars]
 
@@ -421,7 +413,7 @@ class _Interpreter:
         name = eqn.primitive.name
         p = eqn.params
         out_aval = eqn.outvars[0].aval if eqn.outvars else None
-        out_float = out_aval is not None and hasattr(out_aval, "dtype") and _is_float(out_aval.dtype)
+        out_float = getattr(out_aval, "dtype", None) is not None and _is_float(out_aval.dtype)
 
         if name in _CALL_PRIMITIVES:
             for key in ("jaxpr", "call_jaxpr", "fun_jaxpr"):
@@ -455,7 +447,8 @@ class _Interpreter:
             return _emap(functools.partial(self._minmax, name), *ins)
         if name == "clamp" and out_float:
             lo, xv, hi = ins
-            return _emap(lambda a, b, c: self._minmax("min", self._minmax("max", a, b), c), xv, lo, hi)
+            return _emap(lambda a, b, c: self._minmax("min", self._minmax("max", a, b), c),
+                         xv, lo, hi)
         if name == "rem" and out_float:
             return _emap(self._rem, *ins)
         if name in _COMPARE:
@@ -481,7 +474,8 @@ class _Interpreter:
         # structure
         if name == "slice":
             strides = p["strides"] or (1,) * len(p["start_indices"])
-            idx = tuple(slice(s, e, st) for s, e, st in zip(p["start_indices"], p["limit_indices"], strides))
+            bounds = zip(p["start_indices"], p["limit_indices"], strides, strict=True)
+            idx = tuple(slice(s, e, st) for s, e, st in bounds)
             return ins[0][idx].copy()
         if name == "squeeze":
             return np.squeeze(ins[0], axis=tuple(p["dimensions"])).copy()
@@ -510,15 +504,14 @@ class _Interpreter:
             return np.flip(ins[0], axis=tuple(p["dimensions"])).copy()
         if name == "iota":
             shape, dim = tuple(p["shape"]), p["dimension"]
-            a = np.broadcast_to(
-                np.arange(shape[dim]).reshape([-1 if i == dim else 1 for i in range(len(shape))]), shape
-            ).copy()
-            return a
+            ramp = np.arange(shape[dim]).reshape([-1 if i == dim else 1 for i in range(len(shape))])
+            return np.broadcast_to(ramp, shape).copy()
         if name == "pad":
             return self._pad(ins[0], ins[1], p["padding_config"])
         if name == "dot_general":
             return self._dot_general(ins[0], ins[1], p["dimension_numbers"])
-        if name in ("reduce_sum", "reduce_max", "reduce_min", "reduce_prod", "reduce_and", "reduce_or"):
+        if name in ("reduce_sum", "reduce_max", "reduce_min", "reduce_prod", "reduce_and",
+                    "reduce_or"):
             return self._reduce(name, ins[0], tuple(p["axes"]))
         if name in ("argmax", "argmin"):
             return self._argminmax(name, ins[0], tuple(p["axes"]))
@@ -560,7 +553,7 @@ class _Interpreter:
 
     def _note_near_ties(self, name, ins):
         flat = np.broadcast_arrays(*[np.asarray(v, dtype=object) for v in ins])
-        for a, b in zip(flat[0].reshape(-1), flat[1].reshape(-1)):
+        for a, b in zip(flat[0].reshape(-1), flat[1].reshape(-1), strict=True):
             if not isinstance(a, El) or not isinstance(b, El):
                 continue
             if a.sym is None and b.sym is None:
@@ -569,7 +562,8 @@ class _Interpreter:
                 continue
             scale = max(abs(a.val), abs(b.val))
             if a.val != b.val and scale > 0 and abs(a.val - b.val) <= mpmath.mpf(1e-12) * scale:
-                self.ties.append(f"{name}: near tie {mpmath.nstr(a.val, 20)} vs {mpmath.nstr(b.val, 20)}")
+                self.ties.append(f"{name}: near tie {mpmath.nstr(a.val, 20)} "
+                                 f"vs {mpmath.nstr(b.val, 20)}")
 
     def _select_n(self, pred, cases):
         which = np.asarray(_values(pred)).astype(np.int64)
@@ -625,37 +619,35 @@ class _Interpreter:
     @staticmethod
     def _same_kind(fn, arrays, **kw):
         if any(np.asarray(a).dtype == object for a in arrays):
-            arrays = [a if a.dtype == object else _from_array(a) for a in map(np.asarray, arrays)]
+            arrays = [a if a.dtype == object else _from_array(a.astype(np.float64))
+                      for a in map(np.asarray, arrays)]
         return fn(arrays, **kw)
 
     def _pad(self, a, value, config):
+        """lax.pad: low/high edge padding (negative crops) and interior padding."""
         fill = np.asarray(value).reshape(())[()]
-        shape = []
-        for n, (lo, hi, interior) in zip(a.shape, config):
-            shape.append(n + max(n - 1, 0) * interior)
-        core = np.empty(shape, dtype=a.dtype)
-        core[...] = fill if a.dtype != object else None
-        if a.dtype == object:
-            for idx in np.ndindex(core.shape):
-                core[idx] = fill
+
+        def filled(shape):
+            out = np.empty(shape, dtype=a.dtype)
+            out.fill(fill)
+            return out
+
+        core = filled([n + max(n - 1, 0) * interior
+                       for n, (_, _, interior) in zip(a.shape, config, strict=True)])
         core[tuple(slice(None, None, interior + 1) for (_, _, interior) in config)] = a
         for axis, (lo, hi, _) in enumerate(config):
-            if lo < 0:
-                core = np.take(core, range(-lo, core.shape[axis]), axis=axis)
-            if hi < 0:
-                core = np.take(core, range(0, core.shape[axis] + hi), axis=axis)
-            if lo > 0 or hi > 0:
-                widths = [(0, 0)] * core.ndim
-                widths[axis] = (max(lo, 0), max(hi, 0))
-                if core.dtype == object:
-                    new = _obj(tuple(s + w[0] + w[1] for s, w in zip(core.shape, widths)))
-                    for idx in np.ndindex(new.shape):
-                        new[idx] = fill
-                    new[tuple(slice(w[0], w[0] + s) for s, w in zip(core.shape, widths))] = core
-                    core = new
-                else:
-                    core = np.pad(core, widths, constant_values=fill)
-        return core
+            n = core.shape[axis]
+            core = np.take(core, range(max(-lo, 0), n - max(-hi, 0)), axis=axis)
+            parts = []
+            for width in (lo, None, hi):
+                if width is None:
+                    parts.append(core)
+                elif width > 0:
+                    shape = list(core.shape)
+                    shape[axis] = width
+                    parts.append(filled(shape))
+            core = np.concatenate(parts, axis=axis) if len(parts) > 1 else core
+        return core.copy()
 
     def _dot_general(self, lhs, rhs, dims):
         (lc, rc), (lb, rb) = dims
@@ -743,16 +735,16 @@ class _Interpreter:
 
     def _dynamic_slice(self, a, starts, sizes):
         st = [int(np.asarray(s).reshape(())) for s in starts]
-        st = [min(max(s, 0), n - k) for s, n, k in zip(st, a.shape, sizes)]
-        return a[tuple(slice(s, s + k) for s, k in zip(st, sizes))].copy()
+        st = [min(max(s, 0), n - k) for s, n, k in zip(st, a.shape, sizes, strict=True)]
+        return a[tuple(slice(s, s + k) for s, k in zip(st, sizes, strict=True))].copy()
 
     def _dynamic_update_slice(self, a, upd, starts):
         st = [int(np.asarray(s).reshape(())) for s in starts]
-        st = [min(max(s, 0), n - k) for s, n, k in zip(st, a.shape, upd.shape)]
+        st = [min(max(s, 0), n - k) for s, n, k in zip(st, a.shape, upd.shape, strict=True)]
         if a.dtype == object and upd.dtype != object:
             upd = _from_array(upd.astype(np.float64))
         out = a.copy()
-        out[tuple(slice(s, s + k) for s, k in zip(st, upd.shape))] = upd
+        out[tuple(slice(s, s + k) for s, k in zip(st, upd.shape, strict=True))] = upd
         return out
 
     @staticmethod
@@ -761,7 +753,9 @@ class _Interpreter:
 
     def _gather(self, operand, indices, p):
         dn = p["dimension_numbers"]
-        if tuple(getattr(dn, "operand_batching_dims", ())) or tuple(getattr(dn, "start_indices_batching_dims", ())):
+        if getattr(dn, "operand_batching_dims", ()) or getattr(
+            dn, "start_indices_batching_dims", ()
+        ):
             raise NotImplementedError("gather with batching dims")
         offset_dims = tuple(dn.offset_dims)
         collapsed = tuple(dn.collapsed_slice_dims)
@@ -775,9 +769,9 @@ class _Interpreter:
         out_rank = len(batch_shape) + len(offset_dims)
         out_shape = [0] * out_rank
         batch_dims_out = [d for d in range(out_rank) if d not in offset_dims]
-        for d, n in zip(batch_dims_out, batch_shape):
+        for d, n in zip(batch_dims_out, batch_shape, strict=True):
             out_shape[d] = n
-        for d, n in zip(offset_dims, window_shape):
+        for d, n in zip(offset_dims, window_shape, strict=True):
             out_shape[d] = n
         is_obj = operand.dtype == object
         out = _obj(out_shape) if is_obj else np.empty(out_shape, dtype=operand.dtype)
@@ -789,9 +783,8 @@ class _Interpreter:
             for k, d in enumerate(start_map):
                 start[d] = int(indices[bidx + (k,)])
             oob = any(s < 0 or s + slice_sizes[d] > operand.shape[d] for d, s in enumerate(start))
-            if oob and mode == "FILL_OR_DROP" or (oob and "FILL" in mode):
-                fv = (math.nan if fill is None else fill) if is_obj else (0 if fill is None else fill)
-                out[oidx] = _const(fv) if is_obj else fv
+            if oob and mode == "FILL_OR_DROP":
+                out[oidx] = _gather_fill(operand.dtype, fill)
                 continue
             start = [min(max(s, 0), operand.shape[d] - slice_sizes[d]) for d, s in enumerate(start)]
             full = list(start)
@@ -802,14 +795,13 @@ class _Interpreter:
 
     def _scatter(self, name, operand, indices, updates, p):
         dn = p["dimension_numbers"]
-        if tuple(getattr(dn, "operand_batching_dims", ())) or tuple(getattr(dn, "scatter_indices_batching_dims", ())):
+        if getattr(dn, "operand_batching_dims", ()) or getattr(
+            dn, "scatter_indices_batching_dims", ()
+        ):
             raise NotImplementedError("scatter with batching dims")
-        kinds = {"scatter": None, "scatter-add": _add, "scatter_add": _add, "scatter-mul": _mul,
-                 "scatter_mul": _mul, "scatter-sub": _sub, "scatter_sub": _sub,
-                 "scatter-min": "min", "scatter_min": "min", "scatter-max": "max", "scatter_max": "max"}
-        if name not in kinds:
+        kind = name.replace("_", "-").removeprefix("scatter").removeprefix("-") or "set"
+        if kind not in ("set", "add", "sub", "mul", "min", "max"):
             raise NotImplementedError(f"jaxpr_to_sympy: primitive {name!r} is not supported")
-        combine = kinds[name]
         update_window_dims = tuple(dn.update_window_dims)
         inserted = tuple(dn.inserted_window_dims)
         to_operand = tuple(dn.scatter_dims_to_operand_dims)
@@ -831,26 +823,41 @@ class _Interpreter:
             extent = [1] * operand.ndim
             for k, d in enumerate(window_operand_dims):
                 extent[d] = window_sizes[k]
-            oob = any(s < 0 or s + e > n for s, e, n in zip(start, extent, operand.shape))
-            if oob:
+            bounds = list(zip(start, extent, operand.shape, strict=True))
+            if any(s < 0 or s + e > n for s, e, n in bounds):
                 if mode == "CLIP":
-                    start = [min(max(s, 0), n - e) for s, e, n in zip(start, extent, operand.shape)]
+                    start = [min(max(s, 0), n - e) for s, e, n in bounds]
                 else:  # FILL_OR_DROP and PROMISE_IN_BOUNDS: out-of-bounds updates are dropped
                     continue
             full = list(start)
             for k, d in enumerate(window_operand_dims):
                 full[d] += widx[k]
             full = tuple(full)
-            u = updates[uidx]
-            if combine is None:
-                out[full] = u
-            elif isinstance(combine, str):
-                out[full] = self._minmax(combine, out[full], u) if is_obj else (
-                    max(out[full], u) if combine == "max" else min(out[full], u))
-            else:
-                out[full] = combine(out[full], u) if is_obj else {
-                    _add: lambda a, b: a + b, _mul: lambda a, b: a * b, _sub: lambda a, b: a - b}[combine](out[full], u)
+            out[full] = self._combine(kind, out[full], updates[uidx], is_obj)
         return out
+
+    def _combine(self, kind, a, b, is_obj):
+        if kind == "set":
+            return b
+        if kind in ("min", "max"):
+            if is_obj:
+                return self._minmax(kind, a, b)
+            return max(a, b) if kind == "max" else min(a, b)
+        if is_obj:
+            return {"add": _add, "sub": _sub, "mul": _mul}[kind](a, b)
+        return {"add": np.add, "sub": np.subtract, "mul": np.multiply}[kind](a, b)
+
+
+def _gather_fill(dtype, fill):
+    """Value of an out-of-bounds gather in "fill" mode (jax's defaults when fill is None)."""
+    if np.dtype(dtype).kind == "O":
+        return _const(math.nan if fill is None else fill)
+    if fill is not None:
+        return fill
+    if dtype == np.bool_:
+        return True
+    info = np.iinfo(dtype)
+    return info.min if np.issubdtype(dtype, np.signedinteger) else info.max
 
 
 def _int_div(a, b):

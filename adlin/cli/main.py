@@ -121,17 +121,18 @@ def split_settings(system, settings: dict[str, float]) -> tuple[dict[str, float]
         elif name in system.param_names:
             params[name] = value
         else:
+            hint = did_you_mean(name, valid)
             raise ParameterError(f"--set {name}=...: {system.name!r} has no input or parameter "
-                                 f"{name!r}; {did_you_mean(name, valid)}.")
+                                 f"{name!r}; {hint}{'' if hint.endswith('?') else '.'}")
     return inputs, params
 
 
 # -- the commands -------------------------------------------------------------------
-def _demo_notes(op) -> list:
+def _demo_notes(op, model) -> list:
     from ..report import Quantity
     from ..scenarios import ideal_output, sensor_ldo_loop
 
-    loop = sensor_ldo_loop(op=op)
+    loop = sensor_ldo_loop(op=op, model=model)
     ideal = ideal_output({k: float(v) for k, v in op.params.items()},
                          {k: float(v) for k, v in op.inputs.items()})
     out = float(op["v_out"])
@@ -140,7 +141,7 @@ def _demo_notes(op) -> list:
         Quantity("output error v_out - ideal", out - ideal, "V"),
         Quantity("loop gain T(0)", loop.dc, ""),
         Quantity("loop gain T(0) in dB", loop.dc_db, "dB"),
-        Quantity("bound on the error, ideal / (1 + T(0))", ideal / (1 + abs(loop.dc)), "V"),
+        Quantity("loop-gain error scale, ideal / (1 + T(0))", ideal / (1 + abs(loop.dc)), "V"),
         Quantity("loop crossover frequency", loop.crossover_hz, "Hz"),
         Quantity("phase margin", loop.phase_margin_deg, "deg"),
     ]
@@ -160,7 +161,7 @@ def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out
     op = steady_state(system, inputs=inputs, params=params, guess=guess or None)
     model = linearize(system, op)
     devices = circuit.small_signal(op) if circuit is not None else None
-    notes = notes_for(op) if notes_for is not None else []
+    notes = notes_for(op, model) if notes_for is not None else []
     summary = report.summarize(system, op, model, devices=devices, input=args.input,
                                output=args.output, notes=notes)
     figures: list[Path] = []

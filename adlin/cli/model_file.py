@@ -176,8 +176,9 @@ def find_model(module: types.ModuleType, path: str | Path, name: str | None = No
     if name is not None:
         if name not in vars(module) or name.startswith("__"):
             choices = list(objects) + list(factories)
+            hint = did_you_mean(name, choices)
             raise ModelFileError(f"model file '{path}' defines no {name!r} for --model; "
-                                 f"{did_you_mean(name, choices)}.")
+                                 f"{hint}{'' if hint.endswith('?') else '.'}")
         obj = vars(module)[name]
         label = f"{path.name}:{name}"
         if callable(obj) and not isinstance(obj, (System, Circuit, type)):

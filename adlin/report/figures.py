@@ -96,56 +96,126 @@ def bode_figure(summary: Summary):
     return fig
 
 
+def _points(roots) -> tuple[list[float], list[float]]:
+    """Real and imaginary parts, a conjugate pair as two points."""
+    xs, ys = [], []
+    for r in roots:
+        xs.append(r.value.real)
+        ys.append(r.value.imag)
+        if r.pair:
+            xs.append(r.value.real)
+            ys.append(-r.value.imag)
+    return xs, ys
+
+
+def _prefix_for(value: float) -> tuple[float, str]:
+    """An SI scale and prefix that bring `value` into [1, 1000)."""
+    for scale, prefix in ((1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""),
+                          (1e-3, "m"), (1e-6, "µ")):
+        if value >= scale:
+            return scale, prefix
+    return 1e-9, "n"
+
+
+def _dominant_radius(summary: Summary) -> float:
+    """Radius (rad/s) that frames the three slowest poles (a pair counts twice)."""
+    mags, count = [], 0
+    for r in summary.poles:
+        mags.append(r.magnitude_rad_s)
+        count += 2 if r.pair else 1
+        if count >= 3:
+            break
+    finite = [m for m in mags if m > 0 and math.isfinite(m)]
+    return 1.25 * max(finite) if finite else 1.0
+
+
 def pole_zero_figure(summary: Summary):
-    """The s-plane with poles (x) and zeros (o), on symmetric logarithmic axes."""
+    """Two views of the poles (x) and zeros (o).
+
+    Left, the s-plane around the slowest poles on linear, equal axes, with
+    rays of constant damping ratio; right, every pole and zero by natural
+    frequency (Hz, logarithmic) and damping ratio, so roots decades apart
+    stay readable.  Negative damping is the right half plane.
+    """
     from matplotlib.figure import Figure
 
-    fig = Figure(figsize=(7.2, 5.6), dpi=120, facecolor="white", layout="constrained")
-    ax = fig.subplots()
-    _style(ax)
-    values = [r.value for r in summary.poles]
+    fig = Figure(figsize=(11.5, 4.6), dpi=120, facecolor="white", layout="constrained")
+    plane, spread = fig.subplots(1, 2, width_ratios=(1.15, 1.3))
     zero_sets = list(summary.zeros.items())
-    for _, roots in zero_sets:
-        values += [r.value for r in roots]
-    comps = [abs(c) for v in values for c in (v.real, v.imag) if c != 0.0]
-    lin = 10 ** math.floor(math.log10(min(comps))) if comps else 1.0
-    big = max(comps) if comps else 10.0
-    lim = 10 ** math.ceil(math.log10(big) + 0.3)
-    ax.set_xscale("symlog", linthresh=lin, linscale=0.6)
-    ax.set_yscale("symlog", linthresh=lin, linscale=0.6)
-    ax.axvspan(0, lim, color=RHP_SHADE, alpha=0.7, linewidth=0, zorder=0)
-    ax.axvline(0, color="#6b6f78", linewidth=1.2, zorder=1)
-    ax.axhline(0, color="#6b6f78", linewidth=0.8, zorder=1)
-    ax.text(0.985, 0.97, "right half plane\n(unstable poles)", transform=ax.transAxes,
-            ha="right", va="top", fontsize=8, color="#a04050")
-
-    def both(roots):
-        xs, ys = [], []
-        for r in roots:
-            xs.append(r.value.real)
-            ys.append(r.value.imag)
-            if r.pair:
-                xs.append(r.value.real)
-                ys.append(-r.value.imag)
-        return xs, ys
-
-    px, py = both(summary.poles)
-    ax.plot(px, py, linestyle="none", marker="x", markersize=9, markeredgewidth=2.0,
-            color=PALETTE[1], label="poles", zorder=4)
     markers = ("o", "s", "D", "^", "v", "P")
+
+    def zero_style(k):
+        return dict(linestyle="none", marker=markers[k % len(markers)], markersize=8,
+                    markerfacecolor="none", markeredgewidth=1.6,
+                    color=PALETTE[(k + 2) % len(PALETTE)])
+
+    pole_style = dict(linestyle="none", marker="x", markersize=9, markeredgewidth=2.0,
+                      color=PALETTE[1])
+
+    # -- left: the dominant region of the s-plane (upper half: roots are symmetric) -----
+    _style(plane)
+    R = _dominant_radius(summary)
+    scale, prefix = _prefix_for(R)
+    shown = [r for r in summary.poles if r.magnitude_rad_s <= R]
+    right = 0.3 * R
+    for _, roots in zero_sets:
+        right = max([right] + [1.15 * r.value.real for r in roots if r.magnitude_rad_s <= R])
+    right /= scale
+    top = R / scale
+    plane.axvspan(0, right, color=RHP_SHADE, alpha=0.7, linewidth=0, zorder=0)
+    plane.axvline(0, color="#6b6f78", linewidth=1.2, zorder=1)
+    plane.axhline(0, color="#6b6f78", linewidth=0.8, zorder=1)
+    for zeta in (0.2, 0.5, 0.707):
+        angle = math.acos(zeta)
+        x, y = -0.92 * top * math.cos(angle), 0.92 * top * math.sin(angle)
+        plane.plot([0, x], [0, y], color="#9aa0a8", linewidth=0.8, linestyle=(0, (4, 3)),
+                   zorder=1)
+        plane.annotate(f"ζ = {zeta:g}", (x, y), xytext=(-2, 3), textcoords="offset points",
+                       fontsize=7.5, color="#6b6f78", ha="right", va="bottom")
+
+    def upper(roots):
+        keep = [r for r in roots if r.magnitude_rad_s <= R]
+        return ([r.value.real / scale for r in keep], [abs(r.value.imag) / scale for r in keep])
+
+    px, py = upper(shown)
+    plane.plot(px, py, label="poles", zorder=4, clip_on=False, **pole_style)
+    for k, (_, roots) in enumerate(zero_sets):
+        zx, zy = upper(roots)
+        plane.plot(zx, zy, zorder=3, clip_on=False, **zero_style(k))
+    plane.set_xlim(-top * 1.02, right)
+    plane.set_ylim(-0.06 * top, top * 1.02)
+    plane.set_aspect("equal", adjustable="box")
+    plane.set_xlabel(f"real part σ ({prefix}rad/s)")
+    plane.set_ylabel(f"imaginary part ω ({prefix}rad/s)")
+    hidden = len(summary.poles) - len(shown)
+    plane.set_title("slowest poles, upper half plane"
+                    + (f" ({hidden} faster off view)" if hidden else ""),
+                    fontsize=9, color=TEXT, loc="left")
+
+    # -- right: every root by natural frequency and damping ---------------------------
+    _style(spread)
+    spread.set_xscale("log")
+    spread.axhspan(-1.1, 0, color=RHP_SHADE, alpha=0.7, linewidth=0, zorder=0)
+    spread.axhline(0, color="#6b6f78", linewidth=1.0, zorder=1)
+
+    def fz(roots):
+        keep = [r for r in roots if r.frequency_hz > 0]
+        return [r.frequency_hz for r in keep], [r.damping for r in keep]
+
+    fx, fy = fz(summary.poles)
+    spread.plot(fx, fy, label="poles", zorder=4, **pole_style)
     for k, ((o, i), roots) in enumerate(zero_sets):
-        zx, zy = both(roots)
-        ax.plot(zx, zy, linestyle="none", marker=markers[k % len(markers)], markersize=8,
-                markerfacecolor="none", markeredgewidth=1.6, color=PALETTE[(k + 2) % len(PALETTE)],
-                label=f"zeros {i} → {o}", zorder=3)
-    ax.set_xlim(-lim, lim)
-    ax.set_ylim(-lim, lim)
-    ax.set_xlabel("real part σ (rad/s)")
-    ax.set_ylabel("imaginary part ω (rad/s)")
-    ax.legend(frameon=True, facecolor="white", edgecolor=GRID, fontsize=8.5, loc="lower left",
-              labelcolor=TEXT)
-    fig.suptitle(f"{summary.name}: poles and zeros (axes linear within ±{lin:.0e} rad/s, "
-                 "logarithmic beyond)", color=TEXT, fontsize=10, x=0.02, ha="left")
+        zx, zy = fz(roots)
+        spread.plot(zx, zy, label=f"zeros {i} → {o}", zorder=3, **zero_style(k))
+    spread.set_ylim(-1.1, 1.1)
+    spread.set_xlabel("natural frequency |s| / 2π (Hz)")
+    spread.set_ylabel("damping ratio ζ")
+    spread.text(0.015, 0.47, "right half plane (ζ < 0)", transform=spread.transAxes,
+                ha="left", va="top", fontsize=8, color="#a04050")
+    spread.set_title("all poles and zeros", fontsize=9, color=TEXT, loc="left")
+    spread.legend(frameon=True, facecolor="white", edgecolor=GRID, fontsize=8.5,
+                  loc="center left", bbox_to_anchor=(1.01, 0.5), labelcolor=TEXT)
+    fig.suptitle(f"{summary.name}: poles and zeros", color=TEXT, fontsize=11, x=0.01, ha="left")
     return fig
 
 

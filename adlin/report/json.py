@@ -20,7 +20,7 @@ SCHEMA = "adlin.summary/1"
 
 
 def _num(value: float) -> float | None:
-    value = float(value)
+    value = float(value) + 0.0  # + 0.0 turns -0.0 into 0.0
     return value if math.isfinite(value) else None
 
 

@@ -42,6 +42,8 @@ def value_text(value: float, unit: str = "") -> str:
             return _plain(value) + f" {unit}"
     if not unit:
         return _plain(value)
+    if 0.0 < abs(value) < 1e-18:  # below the smallest prefix: numerically zero, say so plainly
+        return f"{value:.3g} {unit_text(unit)}"
     return si(value, unit_text(unit))
 
 
@@ -154,8 +156,9 @@ def _gains(summary: Summary) -> list:
     table = _table("", ("output", "left"), ("input", "left"), ("DC gain", "right"),
                    ("dB", "right"))
     for g in summary.dc_gains:
-        db = f"{20 * math.log10(abs(g.value)):.1f}" if g.value != 0 and math.isfinite(g.value) \
-            else "—"
+        db = "—"
+        if g.value != 0 and math.isfinite(g.value):
+            db = f"{20 * math.log10(abs(g.value)):.1f}".replace("-0.0", "0.0")
         table.add_row(g.output, g.input, value_text(g.value, g.unit), db)
     return [_heading("DC small-signal gains"), table]
 

@@ -34,9 +34,14 @@ That trades DC loop gain (about 40 dB) for a phase margin near 65 degrees at
 capacitor (Rincon-Mora, Analog IC Design with Low-Dropout Regulators,
 McGraw-Hill 2009, ch. on frequency compensation; from memory).
 
-`sensor_ldo_loop` opens the loop at the gate of M1 (a MOS gate draws no DC
-current, so the break does not disturb the bias) and returns the exact loop
-gain, its crossover frequency and the phase margin.
+The loop is closed through a 0 V source ``VINJ`` from ``fb`` to ``sense``
+(the gate of M1): it changes nothing at DC, and `sensor_ldo_loop` uses it as
+the series voltage-injection point of the loop-gain measurement
+(Middlebrook, "Measurement of loop gain in feedback systems", Int. J.
+Electronics 38(4), 1975): with a small-signal source v_z in series,
+``T = -v_fb / v_sense``.  The injection point is exact here up to the
+gate capacitance of M1 (25 fF against the divider's 67 kOhm, a pole near
+100 MHz, far above the crossover).
 """
 
 from __future__ import annotations
@@ -86,23 +91,15 @@ TAIL_NMOS = dict(
 )
 
 
-def sensor_ldo(*, open_loop: bool = False) -> Circuit:
+def sensor_ldo() -> Circuit:
     """The sensor-node LDO as an `adlin.Circuit` (build it with ``.build()``).
 
-    **Arguments:**
-
-    - `open_loop`: False (default) for the regulator. True breaks the loop
-      at the gate of M1, which is then driven by the extra input ``v_probe``
-      (give it the closed-loop ``v_fb`` to keep the same bias); the extra
-      output ``v_fb`` is the divider tap, so the loop gain is
-      ``-d v_fb / d v_probe``.
-
     **Returns:** a `Circuit` with inputs ``v_bat`` (3.7 V) and ``v_ref``
-    (1.2 V), parameters ``R_load``, ``R1``, ``R2``, ``C_out``, ``R_esr``,
-    ``I_bias`` and the device parameters ``"<device>.<keyword>"``, and output
-    ``v_out``.
+    (1.2 V), parameters ``R_load``, ``C_out``, ``R_esr``, ``I_bias``,
+    ``R_cell``, the element values (``R1``, ``R2``, ``CIN``, ...) and the
+    device parameters ``"<device>.<keyword>"``, and output ``v_out``.
     """
-    c = Circuit(NAME + ("_open_loop" if open_loop else ""))
+    c = Circuit(NAME)
     c.input("v_bat", 3.7, unit="V")
     c.input("v_ref", 1.2, unit="V")
     c.param("R_load", 90.0, unit="ohm")
@@ -132,19 +129,14 @@ def sensor_ldo(*, open_loop: bool = False) -> Circuit:
     c.current_source("IBIAS", "supply", "nbias", "I_bias")
     c.mosfet("M6", d="nbias", g="nbias", s="gnd", b="gnd", **TAIL_NMOS)
     c.mosfet("M5", d="tail", g="nbias", s="gnd", b="gnd", **TAIL_NMOS)
-    sense = "fb"
-    if open_loop:
-        c.input("v_probe", 1.2, unit="V")
-        c.voltage_source("VPROBE", "sense", "gnd", "v_probe")
-        sense = "sense"
-    c.mosfet("M1", d="mir", g=sense, s="tail", b="gnd", **AMP_NMOS)
+    # 0 V loop-injection source between the divider tap and the amplifier input.
+    c.voltage_source("VINJ", "sense", "fb", 0.0)
+    c.mosfet("M1", d="mir", g="sense", s="tail", b="gnd", **AMP_NMOS)
     c.mosfet("M2", d="gate", g="reference", s="tail", b="gnd", **AMP_NMOS)
     c.mosfet("M3", d="mir", g="mir", s="supply", b="supply", polarity="pmos", **AMP_PMOS)
     c.mosfet("M4", d="gate", g="mir", s="supply", b="supply", polarity="pmos", **AMP_PMOS)
 
     c.output("v_out", "out")
-    if open_loop:
-        c.output("v_fb", "fb")
     return c
 
 
@@ -189,43 +181,54 @@ def sensor_ldo_loop(
     f_hz: np.ndarray | None = None,
     *,
     op: Any = None,
+    model: Any = None,
 ) -> LoopGain:
     """Loop gain, crossover and phase margin of the regulator at its bias point.
 
-    Solves the closed loop (unless `op` is given), then the open loop with
-    ``v_probe`` equal to the closed-loop ``v_fb`` (same bias), and reads
-    ``T = -d v_fb / d v_probe``.
+    Series voltage injection at ``VINJ``: a small-signal voltage v_z in the
+    source gives ``v_sense = v_fb + v_z`` and the loop gain
+    ``T = -v_fb / v_sense``, both read from the exact descriptor model
+    ``(s E - A) x = b_z``.  The source's branch equation is
+    ``v_sense - v_fb - V = 0`` (modified nodal analysis), so b_z = -df/dV
+    is the unit vector of the row of ``i_VINJ``.
 
     **Arguments:**
 
-    - `inputs`, `params`: overrides for the closed-loop circuit (ignored when
-      `op` is given, which carries its own).
+    - `inputs`, `params`: overrides (ignored when `op` is given).
     - `f_hz`: frequency grid in Hz (default 1 Hz to 1 GHz, 50 points a decade).
-    - `op`: the closed-loop `OperatingPoint`, if already solved.
+    - `op`: the `OperatingPoint` of `sensor_ldo_system()`, if already solved.
+    - `model`: the `LinearModel` at `op`, if already computed.
 
     **Returns:** a `LoopGain`.
     """
     from .._linear.linearize import linearize
     from .._steady.solve import steady_state
 
+    system = None
+    if op is None or model is None:
+        system = sensor_ldo_system()
     if op is None:
-        op = steady_state(sensor_ldo_system(), inputs=inputs, params=params)
-    inputs = {k: float(v) for k, v in op.inputs.items()}
-    params = {k: float(v) for k, v in op.params.items()}
-    opened = sensor_ldo(open_loop=True).build()
-    guess = {k: float(op[k]) for k in op.unknown_names if k in opened.unknowns}
-    guess["v_sense"] = float(op["v_fb"])
-    op_open = steady_state(
-        opened, inputs=inputs | {"v_probe": float(op["v_fb"])}, params=params, guess=guess
-    )
-    lin = linearize(opened, op_open)
-    i_probe = lin.input_names.index("v_probe")
-    o_fb = lin.output_names.index("v_fb")
+        op = steady_state(system, inputs=inputs, params=params)
+    if model is None:
+        model = linearize(system, op)
+    names = model.state_names
+    E, A = np.asarray(model.E), np.asarray(model.A)
+    b = np.zeros(len(names))
+    b[names.index("i_VINJ")] = 1.0
+    k_fb, k_sense = names.index("v_fb"), names.index("v_sense")
+
+    def loop(s_values):
+        out = []
+        for s in s_values:
+            x = np.linalg.solve(s * E - A, b.astype(complex))
+            out.append(-x[k_fb] / x[k_sense])
+        return np.asarray(out)
+
     if f_hz is None:
         f_hz = np.logspace(0, 9, 451)
     f_hz = np.asarray(f_hz, dtype=float)
-    t = -np.asarray(lin.freq_response(f_hz))[o_fb, i_probe]
-    dc = float(-np.asarray(lin.dc_gain())[o_fb, i_probe])
+    t = loop(2j * np.pi * f_hz)
+    dc = float(loop([0.0])[0].real)
     mag = np.abs(t)
     below = np.nonzero(mag < 1.0)[0]
     if below.size == 0 or below[0] == 0:
@@ -235,7 +238,7 @@ def sensor_ldo_loop(
     lf = np.log10(f_hz[k - 1 : k + 1])
     lm = np.log10(mag[k - 1 : k + 1])
     fc = float(10 ** (lf[0] - lm[0] * (lf[1] - lf[0]) / (lm[1] - lm[0])))
-    tc = -complex(np.asarray(lin.freq_response(np.asarray([fc])))[o_fb, i_probe, 0])
+    tc = complex(loop([2j * np.pi * fc])[0])
     phase = np.unwrap(np.angle(t))
     angle = math.atan2(tc.imag, tc.real)
     angle += 2 * math.pi * round((phase[k - 1] - angle) / (2 * math.pi))  # same branch as the grid
