@@ -65,19 +65,10 @@ def check_shapes(system: System) -> None:
             )
 
 
-def evaluator(system: System):
-    """Jitted (f, df/dx, dq/dx) at a point: one compilation serves every check."""
-
-    def evaluate(x, u, p):
-        return system.f(x, u, p), jax.jacfwd(system.f)(x, u, p), jax.jacfwd(system.q)(x, p)
-
-    return jax.jit(evaluate)
-
-
-def matrices_at(system: System, evaluate, x, u, p):
-    """f, df/dx, dq/dx at a point, as numpy arrays."""
-    f, J, E = _call(system, "current or charge", evaluate, x, u, p)
-    return np.asarray(f), np.asarray(J), np.asarray(E)
+def matrices_at(system: System, local, x, u, p):
+    """f, df/dx, dq/dx at a point, as numpy arrays, from the jitted local model."""
+    f, E, A, *_ = _call(system, "current or charge", local, x, u, p)
+    return np.asarray(f), -np.asarray(A), np.asarray(E)
 
 
 def check_finite(system: System, f, J, E, where: str) -> None:
@@ -102,7 +93,7 @@ def check_finite(system: System, f, J, E, where: str) -> None:
             )
 
 
-def test_point(system: System, evaluate, u, p):
+def test_point(system: System, local, u, p):
     """A generic, deterministic point where the model is finite (for structure checks)."""
     rng = np.random.default_rng(7)
     n = system.n
@@ -111,7 +102,7 @@ def test_point(system: System, evaluate, u, p):
     first = None
     for cand in candidates:
         x = jnp.asarray(cand)
-        f, J, E = matrices_at(system, evaluate, x, u, p)
+        f, J, E = matrices_at(system, local, x, u, p)
         if first is None:
             first = (f, J, E)
         if np.all(np.isfinite(f)) and np.all(np.isfinite(J)) and np.all(np.isfinite(E)):
@@ -171,21 +162,21 @@ def check_index(system: System, structure: Structure, J: np.ndarray) -> None:
         )
 
 
-def analyze(system: System, evaluate) -> Structure:
+def analyze(system: System, local) -> Structure:
     """Run every compile-time check and return the dynamic/algebraic structure.
 
     Runs eagerly even when called while an outer jit/vmap/grad is tracing
     (compile() may first be reached from inside a user's jitted function).
     """
     with jax.ensure_compile_time_eval():
-        return _analyze(system, evaluate)
+        return _analyze(system, local)
 
 
-def _analyze(system: System, evaluate) -> Structure:
+def _analyze(system: System, local) -> Structure:
     check_shapes(system)
     u = system.input_vector()
     p = system.param_vector()
-    _, f, J, E = test_point(system, evaluate, u, p)
+    _, f, J, E = test_point(system, local, u, p)
     del f
     check_connectivity(system, J, E)
     structure = find_structure(E)

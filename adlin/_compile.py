@@ -13,7 +13,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 
-from ._checks import analyze, evaluator
+from ._checks import analyze
 from ._linear.model import LinearModel
 from ._steady.newton import JunctionTable, NewtonOptions, newton_solve
 from ._steady.operating_point import OperatingPoint
@@ -47,15 +47,16 @@ class CompiledSystem:
     def __init__(self, system: System, options: NewtonOptions | None = None):
         self.system = system
         self.options = options or NewtonOptions()
-        self.evaluate = evaluator(system)  # (f, df/dx, dq/dx) at a point, jitted
-        self.structure: Structure = analyze(system, self.evaluate)
+        # One jitted program gives the whole local model (f, E, A, B, C, D, y) at a
+        # point: the structural checks, the finite check at a guess and
+        # linearization all reuse it, so it is compiled once.
+        self.local = jax.jit(self._local)
+        self.structure: Structure = analyze(system, self.local)
         self.junctions = _junction_table(system)
         self._left = np.asarray(self.structure.left)
         self._right = np.asarray(self.structure.right)
         self.solve = jax.jit(self._solve)
-        self.linearize = jax.jit(self._linearize)
         self.poles = jax.jit(self._poles)
-        self.matrices = jax.jit(self._matrices)
 
     # -- pure functions (jitted in __init__) -----------------------------
     def _solve(self, u, p, x0) -> OperatingPoint:
@@ -89,25 +90,29 @@ class CompiledSystem:
             method="newton",
         )
 
-    def _matrices(self, x, u, p):
+    def _local(self, x, u, p):
         s = self.system
+        f = s.f(x, u, p)
         E = jax.jacfwd(s.q)(x, p)
         A = -jax.jacfwd(s.f, argnums=0)(x, u, p)
         B = -jax.jacfwd(s.f, argnums=1)(x, u, p)
         C = jax.jacfwd(s.g, argnums=0)(x, u, p)
         D = jax.jacfwd(s.g, argnums=1)(x, u, p)
         m, o = len(s.inputs), len(s.outputs)
-        B = B.reshape(s.n, m)
-        D = D.reshape(o, m)
-        return E, A, B, C, D
+        return f, E, A, B.reshape(s.n, m), C, D.reshape(o, m), s.g(x, u, p)
 
-    def _linearize(self, x, u, p) -> LinearModel:
+    def matrices(self, x, u, p):
+        """(E, A, B, C, D) at a point (jitted through `local`)."""
+        return self.local(x, u, p)[1:6]
+
+    def linearize(self, x, u, p) -> LinearModel:
+        """The LinearModel at (x, u, p); usable under jit, vmap and grad."""
         s = self.system
-        E, A, B, C, D = self._matrices(x, u, p)
+        _, E, A, B, C, D, y = self.local(x, u, p)
         dyn = tuple(s.unknowns[i] for i in self.structure.dynamic_columns)
         return LinearModel(
             E=E, A=A, B=B, C=C, D=D,
-            x0=x, u0=u, y0=s.g(x, u, p),
+            x0=x, u0=u, y0=y,
             left=jnp.asarray(self._left), right=jnp.asarray(self._right),
             n_dynamic=self.structure.n_dynamic,
             state_names=s.unknowns, input_names=s.inputs, output_names=s.outputs,
@@ -117,7 +122,7 @@ class CompiledSystem:
 
     def _poles(self, u, p, x0):
         op = self._solve(u, p, x0)
-        return self._linearize(op.x, u, p).poles(), op.converged
+        return self.linearize(op.x, u, p).poles(), op.converged
 
     # -- conveniences -----------------------------------------------------
     def default_guess(self):
@@ -141,8 +146,9 @@ def compile(system: System, options: NewtonOptions | None = None) -> CompiledSys
     - `system`: an `adlin.System`.
     - `options`: `NewtonOptions` for the steady-state solver (default settings if None).
 
-    **Returns:** a `CompiledSystem` with `solve(u, p, x0)`, `linearize(x, u, p)`,
-    `poles(u, p, x0)` and `matrices(x, u, p)`, all jitted once.
+    **Returns:** a `CompiledSystem` with `solve(u, p, x0)`, `local(x, u, p)`
+    (f, E, A, B, C, D, y), `linearize(x, u, p)`, `matrices(x, u, p)` and
+    `poles(u, p, x0)`, each compiled once and reused for new values.
 
     **Raises:** `ModelError` and subclasses when a structural check fails.
     """

@@ -108,7 +108,8 @@ def steady_state(
     x0 = guess_vector(system, guess)
     traced = _is_traced(u, p, x0)
     if not traced:
-        f, J, E = (np.asarray(a) for a in compiled.evaluate(x0, u, p))
+        f, E, A, *_ = compiled.local(x0, u, p)
+        f, J, E = np.asarray(f), -np.asarray(A), np.asarray(E)
         check_finite(system, f, J, E, where="at the starting guess")
     op = compiled.solve(u, p, x0)
     if not throw:
