@@ -91,15 +91,22 @@ class CompiledSystem:
         )
 
     def _local(self, x, u, p):
+        # Each model function is traced once: derivatives with respect to the
+        # stacked (x, u), with the value itself carried as the auxiliary output.
         s = self.system
-        f = s.f(x, u, p)
+        n = s.n
+
+        def with_value(fn):
+            def split(z):
+                y = fn(z[:n], z[n:], p)
+                return y, y
+
+            return jax.jacfwd(split, has_aux=True)(jnp.concatenate([x, u]))
+
+        Jf, f = with_value(s.f)
+        Jg, y = with_value(s.g)
         E = jax.jacfwd(s.q)(x, p)
-        A = -jax.jacfwd(s.f, argnums=0)(x, u, p)
-        B = -jax.jacfwd(s.f, argnums=1)(x, u, p)
-        C = jax.jacfwd(s.g, argnums=0)(x, u, p)
-        D = jax.jacfwd(s.g, argnums=1)(x, u, p)
-        m, o = len(s.inputs), len(s.outputs)
-        return f, E, A, B.reshape(s.n, m), C, D.reshape(o, m), s.g(x, u, p)
+        return f, E, -Jf[:, :n], -Jf[:, n:], Jg[:, :n], Jg[:, n:], y
 
     def matrices(self, x, u, p):
         """(E, A, B, C, D) at a point (jitted through `local`)."""

@@ -143,7 +143,12 @@ def newton_solve(
     to keep compilation short.
     """
     n = x0.shape[0]
-    value_and_jac = jax.jacfwd(lambda x: (fun(x), fun(x)), has_aux=True)
+
+    def value_twice(x):
+        y = fun(x)  # traced once: the value rides along as the auxiliary output
+        return y, y
+
+    value_and_jac = jax.jacfwd(value_twice, has_aux=True)
 
     def merit(f, w):
         m = 0.5 * jnp.sum((w * f) ** 2)

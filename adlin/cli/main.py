@@ -29,8 +29,18 @@ PROG = "adlin"
 EXIT_USER = 2
 EXIT_INTERNAL = 1
 
-_PREFIX = {"T": 1e12, "G": 1e9, "M": 1e6, "k": 1e3, "m": 1e-3, "u": 1e-6, "µ": 1e-6,
-           "n": 1e-9, "p": 1e-12, "f": 1e-15}
+_PREFIX = {
+    "T": 1e12,
+    "G": 1e9,
+    "M": 1e6,
+    "k": 1e3,
+    "m": 1e-3,
+    "u": 1e-6,
+    "µ": 1e-6,
+    "n": 1e-9,
+    "p": 1e-12,
+    "f": 1e-15,
+}
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([TGMkmuµnpf]?)\s*$")
 
 
@@ -95,18 +105,21 @@ def parse_assignments(items: Sequence[str] | None, option: str) -> dict[str, flo
         name, sep, value = item.partition("=")
         name = name.strip()
         if not sep or not name:
-            raise CommandError(f"{option} {item!r} is not NAME=VALUE; write it like "
-                               f"{option} R1=4.7k (SI prefixes T G M k m u n p f allowed).")
+            raise CommandError(
+                f"{option} {item!r} is not NAME=VALUE; write it like "
+                f"{option} R1=4.7k (SI prefixes T G M k m u n p f allowed)."
+            )
         try:
             out[name] = parse_number(value)
         except ValueError:
-            raise CommandError(f"{option} {item!r}: {value.strip()!r} is not a finite number; "
-                               "write e.g. 4.7e3, 4.7k or 0.6.") from None
+            raise CommandError(
+                f"{option} {item!r}: {value.strip()!r} is not a finite number; "
+                "write e.g. 4.7e3, 4.7k or 0.6."
+            ) from None
     return out
 
 
-def split_settings(system, settings: dict[str, float]) -> tuple[dict[str, float],
-                                                                 dict[str, float]]:
+def split_settings(system, settings: dict[str, float]) -> tuple[dict[str, float], dict[str, float]]:
     """Route ``--set`` values to the System's inputs and parameters by name.
 
     **Raises:** `ParameterError` for a name that is neither.
@@ -122,9 +135,22 @@ def split_settings(system, settings: dict[str, float]) -> tuple[dict[str, float]
             params[name] = value
         else:
             hint = did_you_mean(name, valid)
-            raise ParameterError(f"--set {name}=...: {system.name!r} has no input or parameter "
-                                 f"{name!r}; {hint}{'' if hint.endswith('?') else '.'}")
+            raise ParameterError(
+                f"--set {name}=...: {system.name!r} has no input or parameter "
+                f"{name!r}; {hint}{'' if hint.endswith('?') else '.'}"
+            )
     return inputs, params
+
+
+def _check_choice(option: str, name: str | None, valid: Sequence[str], model: str) -> None:
+    from .._errors import ParameterError, did_you_mean
+
+    if name is not None and name not in valid:
+        hint = did_you_mean(name, valid)
+        raise ParameterError(
+            f"{option} {name}: {model!r} has no such {option[2:]}; "
+            f"{hint}{'' if hint.endswith('?') else '.'}"
+        )
 
 
 # -- the commands -------------------------------------------------------------------
@@ -133,8 +159,9 @@ def _demo_notes(op, model) -> list:
     from ..scenarios import ideal_output, sensor_ldo_loop
 
     loop = sensor_ldo_loop(op=op, model=model)
-    ideal = ideal_output({k: float(v) for k, v in op.params.items()},
-                         {k: float(v) for k, v in op.inputs.items()})
+    ideal = ideal_output(
+        {k: float(v) for k, v in op.params.items()}, {k: float(v) for k, v in op.inputs.items()}
+    )
     out = float(op["v_out"])
     notes = [
         Quantity("ideal output v_ref (1 + R1/R2)", ideal, "V"),
@@ -155,15 +182,27 @@ def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out
     from .._steady.solve import steady_state
 
     out = out or sys.stdout
+    # Every check of the command line before the (slow) first solve.
     inputs, params = split_settings(system, parse_assignments(args.set, "--set"))
     guess = dict(guess or {})
     guess.update(parse_assignments(getattr(args, "guess", None), "--guess"))
+    _check_choice("--input", args.input, system.inputs, system.name)
+    _check_choice("--output", args.output, system.outputs, system.name)
+    if args.plots:
+        try:
+            Path(args.plots).mkdir(parents=True, exist_ok=True)
+        except OSError as err:
+            raise CommandError(
+                f"cannot create the figure directory '{args.plots}' ({err.strerror or err}); "
+                "choose a writable directory with --plots DIR."
+            ) from err
     op = steady_state(system, inputs=inputs, params=params, guess=guess or None)
     model = linearize(system, op)
     devices = circuit.small_signal(op) if circuit is not None else None
     notes = notes_for(op, model) if notes_for is not None else []
-    summary = report.summarize(system, op, model, devices=devices, input=args.input,
-                               output=args.output, notes=notes)
+    summary = report.summarize(
+        system, op, model, devices=devices, input=args.input, output=args.output, notes=notes
+    )
     figures: list[Path] = []
     if args.plots:
         from ..report.figures import write_figures
@@ -171,13 +210,15 @@ def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out
         try:
             figures = write_figures(summary, args.plots)
         except OSError as err:
-            raise CommandError(f"cannot write figures to '{args.plots}' "
-                               f"({err.strerror or err}); choose a writable directory "
-                               "with --plots DIR.") from err
+            raise CommandError(
+                f"cannot write figures to '{args.plots}' "
+                f"({err.strerror or err}); choose a writable directory "
+                "with --plots DIR."
+            ) from err
     if args.json:
-        from ..report.json import to_dict
-
         import json
+
+        from ..report.json import to_dict
 
         data = to_dict(summary)
         data["figures"] = [str(p) for p in figures]
@@ -216,47 +257,71 @@ class _Parser(argparse.ArgumentParser):
 
 def build_parser() -> argparse.ArgumentParser:
     common = argparse.ArgumentParser(add_help=False)
-    common.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
-                        help="show full tracebacks on errors")
-    common.add_argument("--set", action="append", metavar="NAME=VALUE",
-                        help="override an input or parameter (repeatable; SI prefixes allowed, "
-                             "e.g. R1=4.7k)")
-    common.add_argument("--json", action="store_true",
-                        help="print the report as JSON instead of tables")
-    common.add_argument("--plots", metavar="DIR",
-                        help="write bode.png and poles_zeros.png into DIR")
-    common.add_argument("--input", metavar="NAME",
-                        help="input for the zero table and the Bode plot (default: all)")
-    common.add_argument("--output", metavar="NAME",
-                        help="output for the zero table and the Bode plot (default: all)")
+    common.add_argument(
+        "--debug",
+        action="store_true",
+        default=argparse.SUPPRESS,
+        help="show full tracebacks on errors",
+    )
+    common.add_argument(
+        "--set",
+        action="append",
+        metavar="NAME=VALUE",
+        help="override an input or parameter (repeatable; SI prefixes allowed, e.g. R1=4.7k)",
+    )
+    common.add_argument(
+        "--json", action="store_true", help="print the report as JSON instead of tables"
+    )
+    common.add_argument(
+        "--plots", metavar="DIR", help="write bode.png and poles_zeros.png into DIR"
+    )
+    common.add_argument(
+        "--input", metavar="NAME", help="input for the zero table and the Bode plot (default: all)"
+    )
+    common.add_argument(
+        "--output",
+        metavar="NAME",
+        help="output for the zero table and the Bode plot (default: all)",
+    )
 
     parser = _Parser(
         prog=PROG,
         description="Bias point and exact small-signal model of a nonlinear circuit: poles, "
-                    "zeros, gains, device parameters and a normalized model.",
+        "zeros, gains, device parameters and a normalized model.",
         epilog="Results are models: measure prototypes; mains or high-energy designs follow "
-               "local electrical codes and licensed practice.",
+        "local electrical codes and licensed practice.",
     )
-    parser.add_argument("--debug", action="store_true", default=False,
-                        help="show full tracebacks on errors")
+    parser.add_argument(
+        "--debug", action="store_true", default=False, help="show full tracebacks on errors"
+    )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
-    demo = sub.add_parser("demo", parents=[common],
-                          help="run the built-in sensor-node LDO regulator end to end",
-                          description="Bias point, device small-signal parameters, poles, "
-                                      "zeros, DC gains, normalized model and loop gain of "
-                                      "the built-in sensor-node LDO (Li-ion cell to 1.8 V).")
+    demo = sub.add_parser(
+        "demo",
+        parents=[common],
+        help="run the built-in sensor-node LDO regulator end to end",
+        description="Bias point, device small-signal parameters, poles, "
+        "zeros, DC gains, normalized model and loop gain of "
+        "the built-in sensor-node LDO (Li-ion cell to 1.8 V).",
+    )
     demo.set_defaults(func=cmd_demo, guess=None)
-    analyze = sub.add_parser("analyze", parents=[common],
-                             help="analyze a Python model file that defines a System or Circuit",
-                             description="Load MODEL.py (a module-level adlin.System or "
-                                         "adlin.Circuit, or a function returning one), find "
-                                         "its bias point and report its small-signal model.")
+    analyze = sub.add_parser(
+        "analyze",
+        parents=[common],
+        help="analyze a Python model file that defines a System or Circuit",
+        description="Load MODEL.py (a module-level adlin.System or "
+        "adlin.Circuit, or a function returning one), find "
+        "its bias point and report its small-signal model.",
+    )
     analyze.add_argument("model_file", metavar="MODEL.py", help="the Python model file")
-    analyze.add_argument("--model", metavar="NAME",
-                         help="which System, Circuit or function of the file to use")
-    analyze.add_argument("--guess", action="append", metavar="NAME=VALUE",
-                         help="starting value of an unknown for the bias-point solve "
-                              "(repeatable)")
+    analyze.add_argument(
+        "--model", metavar="NAME", help="which System, Circuit or function of the file to use"
+    )
+    analyze.add_argument(
+        "--guess",
+        action="append",
+        metavar="NAME=VALUE",
+        help="starting value of an unknown for the bias-point solve (repeatable)",
+    )
     analyze.set_defaults(func=cmd_analyze)
     return parser
 
@@ -293,8 +358,11 @@ def main(argv: Sequence[str] | None = None) -> int:
             raise
         text = _one_line(err)
         text = text if len(text) <= 300 else text[:297] + "..."
-        print(f"{PROG}: internal error ({type(err).__name__}: {text}); run again with "
-              "--debug for the traceback and report it.", file=sys.stderr)
+        print(
+            f"{PROG}: internal error ({type(err).__name__}: {text}); run again with "
+            "--debug for the traceback and report it.",
+            file=sys.stderr,
+        )
         return EXIT_INTERNAL
 
 

@@ -74,11 +74,15 @@ def load_module(path: str | Path) -> types.ModuleType:
     """
     path = Path(path)
     if not path.exists():
-        raise ModelFileError(f"model file '{path}' does not exist; check the path (relative "
-                             f"paths start from {Path.cwd()}).")
+        raise ModelFileError(
+            f"model file '{path}' does not exist; check the path (relative "
+            f"paths start from {Path.cwd()})."
+        )
     if path.is_dir():
-        raise ModelFileError(f"'{path}' is a directory; give the Python file that defines "
-                             "the model, e.g. examples/rc_ladder.py.")
+        raise ModelFileError(
+            f"'{path}' is a directory; give the Python file that defines "
+            "the model, e.g. examples/rc_ladder.py."
+        )
     try:
         source = path.read_text(encoding="utf-8")
     except (OSError, UnicodeDecodeError) as err:
@@ -86,8 +90,10 @@ def load_module(path: str | Path) -> types.ModuleType:
     try:
         code = compile(source, str(path), "exec")
     except SyntaxError as err:
-        raise ModelFileError(f"model file '{path}' has a syntax error on line {err.lineno}: "
-                             f"{err.msg}; fix it and run again.") from err
+        raise ModelFileError(
+            f"model file '{path}' has a syntax error on line {err.lineno}: "
+            f"{err.msg}; fix it and run again."
+        ) from err
     name = "adlin_model_" + "".join(ch if ch.isalnum() else "_" for ch in path.stem)
     module = types.ModuleType(name)
     module.__file__ = str(path)
@@ -99,9 +105,10 @@ def load_module(path: str | Path) -> types.ModuleType:
     except AdlinError as err:
         raise ModelFileError(f"in model file '{path}'{_where(err, path)}: {err}") from err
     except Exception as err:
-        raise ModelFileError(f"running model file '{path}' failed{_where(err, path)} with "
-                             f"{_error_text(err)}; run with --debug to see the traceback."
-                             ) from err
+        raise ModelFileError(
+            f"running model file '{path}' failed{_where(err, path)} with "
+            f"{_error_text(err)}; run with --debug to see the traceback."
+        ) from err
     finally:
         sys.path.pop(0)
         if previous is not None:
@@ -121,9 +128,12 @@ def _factories(module: types.ModuleType) -> dict[str, Any]:
             sig = inspect.signature(obj)
         except (TypeError, ValueError):  # pragma: no cover - builtins
             continue
-        required = [p for p in sig.parameters.values()
-                    if p.default is inspect.Parameter.empty
-                    and p.kind in (p.POSITIONAL_ONLY, p.POSITIONAL_OR_KEYWORD, p.KEYWORD_ONLY)]
+        required = [
+            p
+            for p in sig.parameters.values()
+            if p.default is inspect.Parameter.empty
+            and p.kind in (p.POSITIONAL_ONLY, p.POSITIONAL_OR_KEYWORD, p.KEYWORD_ONLY)
+        ]
         if not required:
             out[key] = obj
     return out
@@ -131,8 +141,11 @@ def _factories(module: types.ModuleType) -> dict[str, Any]:
 
 def _objects(module: types.ModuleType) -> dict[str, System | Circuit]:
     """Module-level Systems and Circuits, a System built from a listed Circuit dropped."""
-    found = {k: v for k, v in vars(module).items()
-             if not k.startswith("_") and isinstance(v, (System, Circuit))}
+    found = {
+        k: v
+        for k, v in vars(module).items()
+        if not k.startswith("_") and isinstance(v, (System, Circuit))
+    }
     built = set()
     for v in found.values():
         if isinstance(v, Circuit):
@@ -148,8 +161,10 @@ def _as_model(obj: Any, label: str) -> LoadedModel:
         return LoadedModel(obj.build(), obj, label)
     if isinstance(obj, System):
         return LoadedModel(obj, None, label)
-    raise ModelFileError(f"{label} is a {type(obj).__name__}, not an adlin.System or "
-                         "adlin.Circuit; choose another with --model NAME.")
+    raise ModelFileError(
+        f"{label} is a {type(obj).__name__}, not an adlin.System or "
+        "adlin.Circuit; choose another with --model NAME."
+    )
 
 
 def _call(fn, label: str, path: Path):
@@ -158,13 +173,13 @@ def _call(fn, label: str, path: Path):
     except AdlinError as err:
         raise ModelFileError(f"{label}(){_where(err, path)}: {err}") from err
     except Exception as err:
-        raise ModelFileError(f"calling {label}() failed{_where(err, path)} with "
-                             f"{_error_text(err)}; run with --debug to see the traceback."
-                             ) from err
+        raise ModelFileError(
+            f"calling {label}() failed{_where(err, path)} with "
+            f"{_error_text(err)}; run with --debug to see the traceback."
+        ) from err
 
 
-def find_model(module: types.ModuleType, path: str | Path, name: str | None = None
-               ) -> LoadedModel:
+def find_model(module: types.ModuleType, path: str | Path, name: str | None = None) -> LoadedModel:
     """Pick the model a file defines (see the module docstring for the rules).
 
     **Raises:** `ModelFileError` when there is none, several without `name`,
@@ -177,8 +192,10 @@ def find_model(module: types.ModuleType, path: str | Path, name: str | None = No
         if name not in vars(module) or name.startswith("__"):
             choices = list(objects) + list(factories)
             hint = did_you_mean(name, choices)
-            raise ModelFileError(f"model file '{path}' defines no {name!r} for --model; "
-                                 f"{hint}{'' if hint.endswith('?') else '.'}")
+            raise ModelFileError(
+                f"model file '{path}' defines no {name!r} for --model; "
+                f"{hint}{'' if hint.endswith('?') else '.'}"
+            )
         obj = vars(module)[name]
         label = f"{path.name}:{name}"
         if callable(obj) and not isinstance(obj, (System, Circuit, type)):
@@ -188,26 +205,34 @@ def find_model(module: types.ModuleType, path: str | Path, name: str | None = No
         key, obj = next(iter(objects.items()))
         return _as_model(obj, f"{path.name}:{key}")
     if len(objects) > 1:
-        raise ModelFileError(f"model file '{path}' defines several models "
-                             f"({', '.join(objects)}); choose one with --model NAME.")
+        raise ModelFileError(
+            f"model file '{path}' defines several models "
+            f"({', '.join(objects)}); choose one with --model NAME."
+        )
     if len(factories) == 1:
         key, fn = next(iter(factories.items()))
         label = f"{path.name}:{key}"
         return _as_model(_call(fn, label, path), label)
-    annotated = {k: fn for k, fn in factories.items()
-                 if any(t in str(inspect.signature(fn).return_annotation)
-                        for t in ("System", "Circuit"))}
+    annotated = {
+        k: fn
+        for k, fn in factories.items()
+        if any(t in str(inspect.signature(fn).return_annotation) for t in ("System", "Circuit"))
+    }
     if len(annotated) == 1:
         key, fn = next(iter(annotated.items()))
         label = f"{path.name}:{key}"
         return _as_model(_call(fn, label, path), label)
     if len(factories) > 1:
-        raise ModelFileError(f"model file '{path}' defines no System or Circuit object but "
-                             f"several functions ({', '.join(factories)}); choose the one that "
-                             "returns the model with --model NAME.")
-    raise ModelFileError(f"model file '{path}' defines no adlin.System or adlin.Circuit (nor a "
-                         "function without arguments returning one); define one at module "
-                         "level, e.g. model = circuit.build().")
+        raise ModelFileError(
+            f"model file '{path}' defines no System or Circuit object but "
+            f"several functions ({', '.join(factories)}); choose the one that "
+            "returns the model with --model NAME."
+        )
+    raise ModelFileError(
+        f"model file '{path}' defines no adlin.System or adlin.Circuit (nor a "
+        "function without arguments returning one); define one at module "
+        "level, e.g. model = circuit.build()."
+    )
 
 
 def load_model(path: str | Path, name: str | None = None) -> LoadedModel:

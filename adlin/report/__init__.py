@@ -101,8 +101,9 @@ def _ratio_unit(out_unit: str, in_unit: str) -> str:
     return f"{out_unit or '1'}/{in_unit}"
 
 
-def choose_pairs(model, input: str | None = None, output: str | None = None
-                 ) -> list[tuple[str, str]]:
+def choose_pairs(
+    model, input: str | None = None, output: str | None = None
+) -> list[tuple[str, str]]:
     """(output, input) pairs to show: the one asked for, else all (at most `MAX_PAIRS`).
 
     **Raises:** `ParameterError` for an input or output name the model does not have.
@@ -155,14 +156,22 @@ def summarize(
     def unit_of(name: str) -> str:
         return units.get(name) or system.unit(name)
 
-    inputs = [Quantity(k, float(v), unit_of(k)) for k, v in
-              zip(op.input_names, np.asarray(op.u), strict=True)]
-    params = [Quantity(k, float(v), unit_of(k)) for k, v in
-              zip(op.param_names, np.asarray(op.p), strict=True)]
-    bias = [Quantity(k, float(v), unit_of(k)) for k, v in
-            zip(op.unknown_names, np.asarray(op.x), strict=True)]
-    outputs = [Quantity(k, float(v), unit_of(k)) for k, v in
-               zip(op.output_names, np.asarray(op.y), strict=True)]
+    inputs = [
+        Quantity(k, float(v), unit_of(k))
+        for k, v in zip(op.input_names, np.asarray(op.u), strict=True)
+    ]
+    params = [
+        Quantity(k, float(v), unit_of(k))
+        for k, v in zip(op.param_names, np.asarray(op.p), strict=True)
+    ]
+    bias = [
+        Quantity(k, float(v), unit_of(k))
+        for k, v in zip(op.unknown_names, np.asarray(op.x), strict=True)
+    ]
+    outputs = [
+        Quantity(k, float(v), unit_of(k))
+        for k, v in zip(op.output_names, np.asarray(op.y), strict=True)
+    ]
     solver = {
         "method": op.method,
         "converged": bool(op.converged),
@@ -180,7 +189,10 @@ def summarize(
                 for q, v in quantities.items()
             ]
 
-    poles = group_roots(np.asarray(model.poles()))
+    # Reduce once (checks the index at this bias); poles, zeros, gains and the
+    # normalized form of the reduced model are those of the full one.
+    reduced = model.reduce()
+    poles = group_roots(np.asarray(reduced.poles()))
     unstable = [r for r in poles if r.value.real > 0]
     if unstable:
         warnings.append(
@@ -188,23 +200,35 @@ def summarize(
             "the circuit will not stay there (it oscillates or latches)."
         )
     pairs = choose_pairs(model, input, output)
-    zeros = {(o, i): group_roots(np.asarray(model.zeros(input=i, output=o))) for o, i in pairs}
+    zeros = {(o, i): group_roots(np.asarray(reduced.zeros(input=i, output=o))) for o, i in pairs}
 
     dc_gains: list[Gain] = []
     if len(model.input_names):
-        G = _dc_gain(model, poles, warnings)
+        G = _dc_gain(reduced, poles, warnings)
         for a, o in enumerate(model.output_names):
             for b, i in enumerate(model.input_names):
                 dc_gains.append(Gain(o, i, float(G[a, b]), _ratio_unit(unit_of(o), unit_of(i))))
 
     norm = None
     if normalize and poles:
-        norm = _normalized(model, unit_of, warnings)
+        norm = _normalized(reduced, unit_of, warnings)
 
     return Summary(
-        name=system.name, inputs=inputs, params=params, bias=bias, outputs=outputs,
-        solver=solver, devices=device_rows, poles=poles, zeros=zeros, dc_gains=dc_gains,
-        normalized=norm, pairs=pairs, notes=list(notes), warnings=warnings, model=model,
+        name=system.name,
+        inputs=inputs,
+        params=params,
+        bias=bias,
+        outputs=outputs,
+        solver=solver,
+        devices=device_rows,
+        poles=poles,
+        zeros=zeros,
+        dc_gains=dc_gains,
+        normalized=norm,
+        pairs=pairs,
+        notes=list(notes),
+        warnings=warnings,
+        model=model,
     )
 
 
@@ -225,12 +249,14 @@ def _normalized(model, unit_of, warnings: list[str]) -> Normalized | None:
         return None
     origin = dict(nm.scale_origin)
     scales = []
-    for names, values in ((nm.state_names, nm.state_scales), (nm.input_names, nm.input_scales),
-                          (nm.output_names, nm.output_scales)):
+    for names, values in (
+        (nm.state_names, nm.state_scales),
+        (nm.input_names, nm.input_scales),
+        (nm.output_names, nm.output_scales),
+    ):
         for name, value in zip(names, np.asarray(values), strict=True):
             scales.append((name, float(value), unit_of(name), origin.get(name, "")))
     gains = tuple((k, float(v)) for k, v in nm.gains().items())
     ratios = tuple(float(r) for r in np.asarray(nm.time_constant_ratios()))
     poles = tuple(complex(p) for p in np.asarray(nm.poles()))
     return Normalized(float(nm.time_scale), tuple(scales), gains, ratios, poles)
-

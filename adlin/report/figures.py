@@ -75,24 +75,40 @@ def bode_figure(summary: Summary):
         label = f"{i} → {o}"
         mag_ax.semilogx(f, mag, color=color, linewidth=1.8, label=label)
         ph_ax.semilogx(f, phase, color=color, linewidth=1.6)
-        phase_span = [min(phase_span[0], float(phase.min())), max(phase_span[1], float(phase.max()))]
+        phase_span = [
+            min(phase_span[0], float(phase.min())),
+            max(phase_span[1], float(phase.max())),
+        ]
     for ax in (mag_ax, ph_ax):
         _style(ax)
         ax.set_xlim(f[0], f[-1])
     # Pole frequencies as small marks along the top of the magnitude panel.
     pole_f = [r.frequency_hz for r in summary.poles if f[0] <= r.frequency_hz <= f[-1]]
     if pole_f:
-        mag_ax.plot(pole_f, [1.0] * len(pole_f), linestyle="none", marker="v", markersize=5,
-                    color="#8b8f98", transform=mag_ax.get_xaxis_transform(), clip_on=False,
-                    label="pole frequencies")
+        mag_ax.plot(
+            pole_f,
+            [1.0] * len(pole_f),
+            linestyle="none",
+            marker="v",
+            markersize=5,
+            color="#8b8f98",
+            transform=mag_ax.get_xaxis_transform(),
+            clip_on=False,
+            label="pole frequencies",
+        )
     mag_ax.set_ylabel("magnitude (dB)")
     ph_ax.set_ylabel("phase (degrees)")
     ph_ax.set_xlabel("frequency (Hz)")
     span = phase_span[1] - phase_span[0]
     ph_ax.yaxis.set_major_locator(MultipleLocator(45 if span <= 360 else 90))
     mag_ax.legend(frameon=False, fontsize=8.5, loc="best", labelcolor=TEXT)
-    fig.suptitle(f"{summary.name}: small-signal frequency response", color=TEXT, fontsize=11,
-                 x=0.02, ha="left")
+    fig.suptitle(
+        f"{summary.name}: small-signal frequency response",
+        color=TEXT,
+        fontsize=11,
+        x=0.02,
+        ha="left",
+    )
     return fig
 
 
@@ -110,8 +126,15 @@ def _points(roots) -> tuple[list[float], list[float]]:
 
 def _prefix_for(value: float) -> tuple[float, str]:
     """An SI scale and prefix that bring `value` into [1, 1000)."""
-    for scale, prefix in ((1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""),
-                          (1e-3, "m"), (1e-6, "µ")):
+    for scale, prefix in (
+        (1e12, "T"),
+        (1e9, "G"),
+        (1e6, "M"),
+        (1e3, "k"),
+        (1.0, ""),
+        (1e-3, "m"),
+        (1e-6, "µ"),
+    ):
         if value >= scale:
             return scale, prefix
     return 1e-9, "n"
@@ -145,12 +168,18 @@ def pole_zero_figure(summary: Summary):
     markers = ("o", "s", "D", "^", "v", "P")
 
     def zero_style(k):
-        return dict(linestyle="none", marker=markers[k % len(markers)], markersize=8,
-                    markerfacecolor="none", markeredgewidth=1.6,
-                    color=PALETTE[(k + 2) % len(PALETTE)])
+        return dict(
+            linestyle="none",
+            marker=markers[k % len(markers)],
+            markersize=8,
+            markerfacecolor="none",
+            markeredgewidth=1.6,
+            color=PALETTE[(k + 2) % len(PALETTE)],
+        )
 
-    pole_style = dict(linestyle="none", marker="x", markersize=9, markeredgewidth=2.0,
-                      color=PALETTE[1])
+    pole_style = dict(
+        linestyle="none", marker="x", markersize=9, markeredgewidth=2.0, color=PALETTE[1]
+    )
 
     # -- left: the dominant region of the s-plane (upper half: roots are symmetric) -----
     _style(plane)
@@ -168,10 +197,17 @@ def pole_zero_figure(summary: Summary):
     for zeta in (0.2, 0.5, 0.707):
         angle = math.acos(zeta)
         x, y = -0.92 * top * math.cos(angle), 0.92 * top * math.sin(angle)
-        plane.plot([0, x], [0, y], color="#9aa0a8", linewidth=0.8, linestyle=(0, (4, 3)),
-                   zorder=1)
-        plane.annotate(f"ζ = {zeta:g}", (x, y), xytext=(-2, 3), textcoords="offset points",
-                       fontsize=7.5, color="#6b6f78", ha="right", va="bottom")
+        plane.plot([0, x], [0, y], color="#9aa0a8", linewidth=0.8, linestyle=(0, (4, 3)), zorder=1)
+        plane.annotate(
+            f"ζ = {zeta:g}",
+            (x, y),
+            xytext=(-2, 3),
+            textcoords="offset points",
+            fontsize=7.5,
+            color="#6b6f78",
+            ha="right",
+            va="bottom",
+        )
 
     def upper(roots):
         keep = [r for r in roots if r.magnitude_rad_s <= R]
@@ -188,9 +224,12 @@ def pole_zero_figure(summary: Summary):
     plane.set_xlabel(f"real part σ ({prefix}rad/s)")
     plane.set_ylabel(f"imaginary part ω ({prefix}rad/s)")
     hidden = len(summary.poles) - len(shown)
-    plane.set_title("slowest poles, upper half plane"
-                    + (f" ({hidden} faster off view)" if hidden else ""),
-                    fontsize=9, color=TEXT, loc="left")
+    plane.set_title(
+        "slowest poles, upper half plane" + (f" ({hidden} faster off view)" if hidden else ""),
+        fontsize=9,
+        color=TEXT,
+        loc="left",
+    )
 
     # -- right: every root by natural frequency and damping ---------------------------
     _style(spread)
@@ -210,11 +249,26 @@ def pole_zero_figure(summary: Summary):
     spread.set_ylim(-1.1, 1.1)
     spread.set_xlabel("natural frequency |s| / 2π (Hz)")
     spread.set_ylabel("damping ratio ζ")
-    spread.text(0.015, 0.47, "right half plane (ζ < 0)", transform=spread.transAxes,
-                ha="left", va="top", fontsize=8, color="#a04050")
+    spread.text(
+        0.015,
+        0.47,
+        "right half plane (ζ < 0)",
+        transform=spread.transAxes,
+        ha="left",
+        va="top",
+        fontsize=8,
+        color="#a04050",
+    )
     spread.set_title("all poles and zeros", fontsize=9, color=TEXT, loc="left")
-    spread.legend(frameon=True, facecolor="white", edgecolor=GRID, fontsize=8.5,
-                  loc="center left", bbox_to_anchor=(1.01, 0.5), labelcolor=TEXT)
+    spread.legend(
+        frameon=True,
+        facecolor="white",
+        edgecolor=GRID,
+        fontsize=8.5,
+        loc="center left",
+        bbox_to_anchor=(1.01, 0.5),
+        labelcolor=TEXT,
+    )
     fig.suptitle(f"{summary.name}: poles and zeros", color=TEXT, fontsize=11, x=0.01, ha="left")
     return fig
 

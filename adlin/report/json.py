@@ -50,13 +50,19 @@ def to_dict(summary: Summary) -> dict[str, Any]:
         "bias_point": {q.name: _quantity(q) for q in summary.bias},
         "outputs": {q.name: _quantity(q) for q in summary.outputs},
         "solver": {**summary.solver, "residual_norm": _num(summary.solver["residual_norm"])},
-        "devices": {element: {q.name: _quantity(q) for q in rows}
-                    for element, rows in summary.devices.items()},
+        "devices": {
+            element: {q.name: _quantity(q) for q in rows}
+            for element, rows in summary.devices.items()
+        },
         "poles": [_root(r) for r in summary.poles],
-        "zeros": [{"output": o, "input": i, "zeros": [_root(r) for r in roots]}
-                  for (o, i), roots in summary.zeros.items()],
-        "dc_gains": [{"output": g.output, "input": g.input, "value": _num(g.value),
-                      "unit": g.unit} for g in summary.dc_gains],
+        "zeros": [
+            {"output": o, "input": i, "zeros": [_root(r) for r in roots]}
+            for (o, i), roots in summary.zeros.items()
+        ],
+        "dc_gains": [
+            {"output": g.output, "input": g.input, "value": _num(g.value), "unit": g.unit}
+            for g in summary.dc_gains
+        ],
         "normalized": None,
         "notes": {q.name: _quantity(q) for q in summary.notes},
         "warnings": list(summary.warnings),
@@ -66,8 +72,10 @@ def to_dict(summary: Summary) -> dict[str, Any]:
     if nm is not None:
         out["normalized"] = {
             "time_scale_s": _num(nm.time_scale_s),
-            "scales": {name: {"value": _num(v), "unit": unit, "origin": origin}
-                       for name, v, unit, origin in nm.scales},
+            "scales": {
+                name: {"value": _num(v), "unit": unit, "origin": origin}
+                for name, v, unit, origin in nm.scales
+            },
             "gains": {name: _num(v) for name, v in nm.gains},
             "time_constant_ratios": [_num(r) for r in nm.time_constant_ratios],
             "poles": [{"real": _num(p.real), "imag": _num(p.imag)} for p in nm.poles],

@@ -63,8 +63,14 @@ def eng(value: float) -> str:
 
 
 def _table(title: str, *columns: tuple[str, str]) -> Table:
-    table = Table(title=None, box=box.SIMPLE_HEAD, border_style=BORDER, header_style="bold",
-                  pad_edge=False, show_edge=False)
+    table = Table(
+        title=None,
+        box=box.SIMPLE_HEAD,
+        border_style=BORDER,
+        header_style="bold",
+        pad_edge=False,
+        show_edge=False,
+    )
     for name, justify in columns:
         table.add_column(name, justify=justify)  # type: ignore[arg-type]
     table.caption = None
@@ -86,8 +92,11 @@ def _bias(summary: Summary) -> list:
     s = summary.solver
     status = "converged" if s["converged"] else s["message"]
     head = Text.assemble(
-        ("Solved by ", DIM), (s["method"], "bold"), (f" in {s['iterations']} iterations, ", DIM),
-        (status, DIM), (f"; largest residual {s['residual_norm']:.2g}.", DIM),
+        ("Solved by ", DIM),
+        (s["method"], "bold"),
+        (f" in {s['iterations']} iterations, ", DIM),
+        (status, DIM),
+        (f"; largest residual {s['residual_norm']:.2g}.", DIM),
     )
     out: list = [_heading("Bias point"), head]
     grid = Table.grid(padding=(0, 4))
@@ -119,8 +128,7 @@ def _devices(summary: Summary) -> list:
     for names, elements in groups.items():
         table = _table("", ("device", "left"), *[(n, "right") for n in names])
         for element in elements:
-            table.add_row(element, *[value_text(q.value, q.unit)
-                                     for q in summary.devices[element]])
+            table.add_row(element, *[value_text(q.value, q.unit) for q in summary.devices[element]])
         out.append(table)
     return out
 
@@ -130,8 +138,16 @@ def _roots(title: str, roots: list[Root], kind: str) -> list:
     if not roots:
         out.append(Text(f"no finite {kind}s", style=DIM))
         return out
-    table = _table("", ("#", "right"), ("s (rad/s)", "right"), ("f (Hz)", "right"),
-                   ("damping ζ", "right"), ("Q", "right"), ("τ (s)", "right"), ("", "left"))
+    table = _table(
+        "",
+        ("#", "right"),
+        ("s (rad/s)", "right"),
+        ("f (Hz)", "right"),
+        ("damping ζ", "right"),
+        ("Q", "right"),
+        ("τ (s)", "right"),
+        ("", "left"),
+    )
     for k, r in enumerate(roots, 1):
         if r.pair:
             s = f"{eng(r.value.real)} ± j{eng(r.value.imag)}"
@@ -144,8 +160,15 @@ def _roots(title: str, roots: list[Root], kind: str) -> list:
             flag = "right half plane" if kind == "pole" else "right half plane (non-minimum phase)"
         elif r.value.real == 0 and kind == "pole":
             flag = "on the jω axis"
-        table.add_row(str(k), s, eng(r.frequency_hz), f"{r.damping:.3f}", q, tau,
-                      Text(flag, style=ACCENT if flag else ""))
+        table.add_row(
+            str(k),
+            s,
+            eng(r.frequency_hz),
+            f"{r.damping:.3f}",
+            q,
+            tau,
+            Text(flag, style=ACCENT if flag else ""),
+        )
     out.append(table)
     return out
 
@@ -153,8 +176,7 @@ def _roots(title: str, roots: list[Root], kind: str) -> list:
 def _gains(summary: Summary) -> list:
     if not summary.dc_gains:
         return []
-    table = _table("", ("output", "left"), ("input", "left"), ("DC gain", "right"),
-                   ("dB", "right"))
+    table = _table("", ("output", "left"), ("input", "left"), ("DC gain", "right"), ("dB", "right"))
     for g in summary.dc_gains:
         db = "—"
         if g.value != 0 and math.isfinite(g.value):
@@ -167,10 +189,14 @@ def _normalized(summary: Summary) -> list:
     nm = summary.normalized
     if nm is None:
         return []
-    out: list = [_heading("Normalized model"),
-                 Text.assemble(("time scale T = ", DIM), (si(nm.time_scale_s, "s"), "bold"),
-                               (" (dominant time constant); every quantity divided by its "
-                                "scale below.", DIM))]
+    out: list = [
+        _heading("Normalized model"),
+        Text.assemble(
+            ("time scale T = ", DIM),
+            (si(nm.time_scale_s, "s"), "bold"),
+            (" (dominant time constant); every quantity divided by its scale below.", DIM),
+        ),
+    ]
     scales = _table("", ("quantity", "left"), ("scale", "right"), ("origin", "left"))
     for name, value, unit, origin in nm.scales:
         scales.add_row(name, value_text(value, unit), Text(origin, style=DIM))
@@ -197,8 +223,9 @@ def _notes(summary: Summary) -> list:
 def renderables(summary: Summary) -> Group:
     """The summary as one `rich` renderable."""
     parts: list = [
-        Text.assemble(("adlin", "bold #2a9d8f"), ("  small-signal summary of ", DIM),
-                      (summary.name, "bold")),
+        Text.assemble(
+            ("adlin", "bold #2a9d8f"), ("  small-signal summary of ", DIM), (summary.name, "bold")
+        ),
     ]
     parts += _bias(summary)
     parts += _devices(summary)
@@ -231,8 +258,9 @@ def make_console(file=None) -> Console:
 
 def to_text(summary: Summary, width: int = 120) -> str:
     """The summary as plain text (no colours), e.g. for a log file."""
-    console = Console(record=True, width=width, highlight=False, color_system=None,
-                      file=open_null())
+    console = Console(
+        record=True, width=width, highlight=False, color_system=None, file=open_null()
+    )
     console.print(renderables(summary))
     return console.export_text()
 
