@@ -14,7 +14,9 @@ from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 import equinox as eqx
+import jax
 import jax.numpy as jnp
+import numpy as np
 
 from . import _config  # noqa: F401  (float64 policy, before any array exists)
 from ._errors import ModelError, ParameterError, did_you_mean
@@ -282,6 +284,13 @@ def _merge(kind: str, names: tuple[str, ...], defaults, given: Mapping[str, Any]
             if k not in values:
                 raise ParameterError(f"unknown {kind} {k!r}: {did_you_mean(k, names)}.")
             values[k] = v
-    if not names:
-        return jnp.zeros((0,), dtype=jnp.float64)
-    return jnp.stack([jnp.asarray(values[k], dtype=jnp.float64) for k in names])
+    vals = [values[k] for k in names]
+    if not any(isinstance(v, jax.core.Tracer) for v in vals):
+        # concrete values: one host array, no per-value device operations
+        try:
+            return jnp.asarray(np.array([np.asarray(v, dtype=np.float64) for v in vals],
+                                        dtype=np.float64).reshape(len(names)))
+        except (TypeError, ValueError):
+            bad = next(k for k in names if np.asarray(values[k]).size != 1)
+            raise ParameterError(f"{kind} {bad!r} must be a scalar, got {values[bad]!r}.") from None
+    return jnp.stack([jnp.asarray(v, dtype=jnp.float64) for v in vals])

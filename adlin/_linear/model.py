@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import math
 
 import equinox as eqx
@@ -20,11 +21,22 @@ PARTITION_TOL = 1e-9
 INDEX_COND = 1e13
 
 
-_reduce = jax.jit(reduce_descriptor, static_argnums=(7,))
+@functools.partial(jax.jit, static_argnums=(8,))
+def _reduce(E, A, B, C, D, x0, left, right, r: int):
+    """Reduced (A, B, C, D), the reduced states' bias, identity E, and the checks."""
+    Ar, Br, Cr, Dr, off, cond = reduce_descriptor(E, A, B, C, D, left, right, r)
+    xz = jnp.linalg.solve(right, x0)[:r]
+    eye = jnp.eye(r, dtype=A.dtype)
+    return Ar, Br, Cr, Dr, xz, eye, off, cond
 
 
 @jax.jit
-def _sorted_eigvals(A):
+def dc_gain(A, B, C, D):
+    return D - C @ jnp.linalg.solve(A, B)
+
+
+@jax.jit
+def sorted_eigvals(A):
     p = jnp.linalg.eigvals(A)
     return p[jnp.argsort(jnp.abs(p))]
 
@@ -102,8 +114,8 @@ class LinearModel(eqx.Module):
         if self.reduced:
             return self
         r = self.n_dynamic
-        Ar, Br, Cr, Dr, off, cond = _reduce(
-            self.E, self.A, self.B, self.C, self.D, self.left, self.right, r
+        Ar, Br, Cr, Dr, xz, eye, off, cond = _reduce(
+            self.E, self.A, self.B, self.C, self.D, self.x0, self.left, self.right, r
         )
         if _concrete(off, cond):
             if float(cond) > INDEX_COND or not math.isfinite(float(cond)):
@@ -120,11 +132,10 @@ class LinearModel(eqx.Module):
                     f"(off-block size {float(off):.3g}), so the compile-time partition into "
                     "dynamic and algebraic unknowns does not hold here; report this model."
                 )
-        xz = jnp.linalg.solve(self.right, self.x0)[:r] if r else jnp.zeros(0)
         return LinearModel(
-            E=jnp.eye(r), A=Ar, B=Br, C=Cr, D=Dr,
+            E=eye, A=Ar, B=Br, C=Cr, D=Dr,
             x0=xz, u0=self.u0, y0=self.y0,
-            left=jnp.eye(r), right=jnp.eye(r), n_dynamic=r,
+            left=eye, right=eye, n_dynamic=r,
             state_names=self.dynamic_names, input_names=self.input_names,
             output_names=self.output_names, dynamic_names=self.dynamic_names,
             unit_items=self.unit_items, reduced=True,
@@ -144,7 +155,7 @@ class LinearModel(eqx.Module):
         A, _, _, _ = self.state_space()
         if A.shape[0] == 0:
             return jnp.zeros((0,), jnp.complex128)
-        return _sorted_eigvals(A)
+        return sorted_eigvals(A)
 
     def _pair(self, input: str | None, output: str | None) -> tuple[int, int]:
         def pick(kind, names, name):
@@ -177,18 +188,18 @@ class LinearModel(eqx.Module):
     # -- responses -------------------------------------------------------------
     def transfer(self, s) -> jax.Array:
         """H(s) = C (sE - A)^-1 B + D at complex s (rad/s), shape (outputs, inputs, len(s))."""
-        s = jnp.atleast_1d(jnp.asarray(s, dtype=jnp.complex128))
+        s = np.atleast_1d(np.asarray(s, dtype=complex)) if _concrete(s) else jnp.atleast_1d(s)
         return _transfer(self.E, self.A, self.B, self.C, self.D, s)
 
     def freq_response(self, f_hz) -> jax.Array:
         """Complex frequency response at `f_hz` (Hz): shape (outputs, inputs, len(f_hz))."""
-        f = jnp.atleast_1d(jnp.asarray(f_hz, dtype=jnp.float64))
-        return self.transfer(2j * jnp.pi * f)
+        if _concrete(f_hz):
+            return self.transfer(2j * np.pi * np.atleast_1d(np.asarray(f_hz, dtype=float)))
+        return self.transfer(2j * jnp.pi * jnp.atleast_1d(f_hz))
 
     def dc_gain(self) -> jax.Array:
         """Small-signal gain at DC, D - C A^-1 B, shape (outputs, inputs)."""
-        X = jnp.linalg.solve(self.A, self.B)
-        return self.D - self.C @ X
+        return dc_gain(self.A, self.B, self.C, self.D)
 
     def step(self, t_s) -> jax.Array:
         """Response to a unit step on each input, exact (matrix exponential).
@@ -198,7 +209,7 @@ class LinearModel(eqx.Module):
         **Returns:** shape (outputs, inputs, len(t_s)), deviation from the bias.
         """
         A, B, C, D = self.state_space()
-        t = jnp.atleast_1d(jnp.asarray(t_s, dtype=jnp.float64))
+        t = np.atleast_1d(np.asarray(t_s, dtype=float)) if _concrete(t_s) else jnp.atleast_1d(t_s)
         return _step(A, B, C, D, t)
 
     # -- tables and exports ------------------------------------------------------

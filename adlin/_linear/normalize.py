@@ -25,6 +25,7 @@ import scipy.constants as const
 from jaxtyping import Array, Float
 
 from .._errors import AnalysisError, did_you_mean
+from .model import dc_gain, sorted_eigvals
 
 ROOM_TEMPERATURE_K = 300.15
 
@@ -56,12 +57,11 @@ class NormalizedModel(eqx.Module):
         """Dimensionless poles (physical poles times `time_scale`)."""
         if self.A.shape[0] == 0:
             return jnp.zeros((0,), jnp.complex128)
-        p = jnp.linalg.eigvals(self.A)
-        return p[jnp.argsort(jnp.abs(p))]
+        return sorted_eigvals(self.A)
 
     def dc_gain(self) -> jax.Array:
         """Dimensionless DC gains, shape (outputs, inputs)."""
-        return self.D - self.C @ jnp.linalg.solve(self.A, self.B)
+        return dc_gain(self.A, self.B, self.C, self.D)
 
     def time_constant_ratios(self) -> jax.Array:
         """tau_k / T = 1 / |dimensionless pole k|, one per pole, slowest first."""
@@ -83,13 +83,12 @@ class NormalizedModel(eqx.Module):
         return out
 
 
-def _auto(value, unit: str, vt: float, current_floor):
-    mag = jnp.abs(value)
-    if unit == "V":
-        return jnp.maximum(mag, vt), "bias" , "thermal voltage"
-    if unit == "A":
-        return jnp.maximum(mag, current_floor), "bias", "largest bias current x 1e-3"
-    return jnp.where(mag > 0, mag, 1.0), "bias", "unit"
+_FLOOR_NAMES = {"V": "thermal voltage", "A": "largest bias current x 1e-3"}
+
+
+def _scale_matrices(A, B, C, D, X, U, Y, T):
+    return (T * (A * X[None, :] / X[:, None]), T * (B * U[None, :] / X[:, None]),
+            C * X[None, :] / Y[:, None], D * U[None, :] / Y[:, None])
 
 
 def normalize(
@@ -119,47 +118,59 @@ def normalize(
         if k not in valid:
             raise AnalysisError(f"normalize() got a scale for {k!r}, which is not a state, input "
                                 f"or output of the model: {did_you_mean(k, valid)}.")
+    poles = red.poles() if time_scale_s is None else None
+    leaves = [red.A, red.B, red.C, red.D, red.x0, red.u0, red.y0, poles, *scales.values()]
+    traced = any(isinstance(v, jax.core.Tracer) for v in leaves)
+    # With concrete values everything below is host arithmetic (no device round trips).
+    xp = jnp if traced else np
+    A, B, C, D, x0, u0, y0 = (xp.asarray(M) for M in
+                              (red.A, red.B, red.C, red.D, red.x0, red.u0, red.y0))
     vt = const.k * temperature_k / const.e
     units = dict(red.unit_items)
-    currents = [red.x0[i] for i, n in enumerate(red.state_names) if units.get(n) == "A"]
-    floor = jnp.max(jnp.abs(jnp.stack(currents))) * 1e-3 if currents else jnp.asarray(1e-12)
-    floor = jnp.maximum(floor, 1e-15)
+    currents = [i for i, n in enumerate(red.state_names) if units.get(n) == "A"]
+    floor_a = xp.max(xp.abs(x0[xp.asarray(currents)])) * 1e-3 if currents else 1e-12
+    floor_a = xp.maximum(floor_a, 1e-15)
     origin: list[tuple[str, str]] = []
 
     def pick(names, values):
         out = []
-        for name, v in zip(names, values, strict=True):
+        for k, (name, v) in enumerate(zip(names, values, strict=True)):
             if name in scales:
-                out.append(jnp.asarray(scales[name], dtype=jnp.float64))
+                out.append(xp.asarray(scales[name], dtype=xp.float64))
                 origin.append((name, "given"))
                 continue
-            s, from_bias, from_floor = _auto(v, units.get(name, ""), vt, floor)
-            out.append(s)
-            is_bias = (not isinstance(s, jax.core.Tracer)) and float(jnp.abs(v)) >= float(s)
-            origin.append((name, from_bias if is_bias else from_floor))
-        return jnp.stack(out) if out else jnp.zeros((0,))
+            unit = units.get(name, "")
+            mag = xp.abs(values[k])
+            floor = {"V": vt, "A": floor_a}.get(unit, 0.0)
+            scale = xp.maximum(mag, floor) if floor else xp.where(mag > 0, mag, 1.0)
+            out.append(scale)
+            if traced:
+                origin.append((name, "automatic"))
+            elif float(mag) >= float(scale):
+                origin.append((name, "bias"))
+            else:
+                origin.append((name, _FLOOR_NAMES.get(unit, "unit")))
+        return xp.stack(out) if out else xp.zeros((0,))
 
-    X = pick(red.state_names, red.x0)
-    U = pick(red.input_names, red.u0)
-    Y = pick(red.output_names, red.y0)
+    X = pick(red.state_names, x0)
+    U = pick(red.input_names, u0)
+    Y = pick(red.output_names, y0)
     if time_scale_s is None:
-        poles = red.poles()
-        if poles.shape[0] == 0:
-            T = jnp.asarray(1.0)
+        mags = xp.abs(xp.asarray(poles))
+        if mags.shape[0] == 0:
+            T = xp.asarray(1.0)
             origin.append(("time", "unit (no poles)"))
         else:
-            mags = jnp.abs(poles)
-            T = 1.0 / jnp.min(jnp.where(mags > 0, mags, jnp.inf))
+            T = 1.0 / xp.min(xp.where(mags > 0, mags, xp.inf))
             origin.append(("time", "dominant time constant"))
     else:
-        T = jnp.asarray(time_scale_s, dtype=jnp.float64)
+        T = xp.asarray(time_scale_s, dtype=xp.float64)
         origin.append(("time", "given"))
-    A = T * (red.A * X[None, :] / X[:, None])
-    B = T * (red.B * U[None, :] / X[:, None])
-    C = red.C * X[None, :] / Y[:, None]
-    D = red.D * U[None, :] / Y[:, None]
+    An, Bn, Cn, Dn = _scale_matrices(A, B, C, D, X, U, Y, T)
+    as_jax = (lambda a: a) if traced else (lambda a: jnp.asarray(a))
     return NormalizedModel(
-        A=A, B=B, C=C, D=D, time_scale=T, state_scales=X, input_scales=U, output_scales=Y,
+        A=as_jax(An), B=as_jax(Bn), C=as_jax(Cn), D=as_jax(Dn), time_scale=as_jax(T),
+        state_scales=as_jax(X), input_scales=as_jax(U), output_scales=as_jax(Y),
         state_names=red.state_names, input_names=red.input_names,
         output_names=red.output_names, scale_origin=tuple(origin),
     )

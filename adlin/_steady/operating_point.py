@@ -53,6 +53,8 @@ class OperatingPoint(eqx.Module):
             (self.param_names, self.p),
         ):
             if name in names:
+                if not isinstance(values, jax.core.Tracer):
+                    return np.asarray(values)[..., names.index(name)]  # no device op
                 return values[..., names.index(name)]
         valid = self.unknown_names + self.output_names + self.input_names + self.param_names
         raise ParameterError(f"operating point has no quantity {name!r}: {did_you_mean(name, valid)}.")
