@@ -101,12 +101,11 @@ def test_point(system: System, local, u, p):
     candidates = (base, np.abs(base) + 0.1, np.full(n, 0.5) + 0.1 * base)
     first = None
     for cand in candidates:
-        x = jnp.asarray(cand)
-        f, J, E = matrices_at(system, local, x, u, p)
+        f, J, E = matrices_at(system, local, cand, u, p)
         if first is None:
             first = (f, J, E)
         if np.all(np.isfinite(f)) and np.all(np.isfinite(J)) and np.all(np.isfinite(E)):
-            return x, f, J, E
+            return cand, f, J, E
     check_finite(system, *first, where="at a generic test point near x = 0")
     raise AssertionError("unreachable")
 
@@ -165,17 +164,21 @@ def check_index(system: System, structure: Structure, J: np.ndarray) -> None:
 def analyze(system: System, local) -> Structure:
     """Run every compile-time check and return the dynamic/algebraic structure.
 
-    Runs eagerly even when called while an outer jit/vmap/grad is tracing
-    (compile() may first be reached from inside a user's jitted function).
+    `local` is the jitted (f, E, A, B, C, D, y) program.  It is compiled here
+    and the executable is called directly, so the checks run on concrete
+    numbers even when compile() is first reached inside a user's jit, vmap or
+    grad (a plain call there would be staged into the outer trace).
     """
     with jax.ensure_compile_time_eval():
-        return _analyze(system, local)
-
-
-def _analyze(system: System, local) -> Structure:
+        u = np.asarray(system.input_vector())
+        p = np.asarray(system.param_vector())
+    x = jax.ShapeDtypeStruct((system.n,), jnp.float64)
     check_shapes(system)
-    u = system.input_vector()
-    p = system.param_vector()
+    executable = _call(system, "current or charge", lambda: local.lower(x, u, p).compile())
+    return _analyze(system, executable, u, p)
+
+
+def _analyze(system: System, local, u, p) -> Structure:
     _, f, J, E = test_point(system, local, u, p)
     del f
     check_connectivity(system, J, E)

@@ -182,7 +182,8 @@ class LinearModel(eqx.Module):
         A, B, C, D = self.state_space()
         z = siso_zeros(A, B[:, i], C[o], D[o, i])
         if _concrete(z):
-            z = z[np.isfinite(np.asarray(z))]
+            z = np.asarray(z)
+            return jax.device_put(z[np.isfinite(z)])
         return z
 
     # -- responses -------------------------------------------------------------

@@ -167,7 +167,7 @@ def normalize(
         T = xp.asarray(time_scale_s, dtype=xp.float64)
         origin.append(("time", "given"))
     An, Bn, Cn, Dn = _scale_matrices(A, B, C, D, X, U, Y, T)
-    as_jax = (lambda a: a) if traced else (lambda a: jnp.asarray(a))
+    as_jax = (lambda a: a) if traced else jax.device_put
     return NormalizedModel(
         A=as_jax(An), B=as_jax(Bn), C=as_jax(Cn), D=as_jax(Dn), time_scale=as_jax(T),
         state_scales=as_jax(X), input_scales=as_jax(U), output_scales=as_jax(Y),

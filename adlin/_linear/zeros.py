@@ -76,6 +76,7 @@ def _pencil_zeros_jvp(primals, tangents):
     return z, dz
 
 
+@jax.jit
 def siso_zeros(A, b, c, d):
     """Zeros of c (sI - A)^-1 b + d, length n, `inf` for zeros at infinity."""
     if A.shape[0] == 0:

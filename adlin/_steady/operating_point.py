@@ -65,11 +65,11 @@ class OperatingPoint(eqx.Module):
 
     @property
     def inputs(self) -> dict[str, jax.Array]:
-        return {k: self.u[..., i] for i, k in enumerate(self.input_names)}
+        return {k: self[k] for k in self.input_names}
 
     @property
     def params(self) -> dict[str, jax.Array]:
-        return {k: self.p[..., i] for i, k in enumerate(self.param_names)}
+        return {k: self[k] for k in self.param_names}
 
     def values(self) -> dict[str, float]:
         """Unknowns and outputs by name, as Python floats (un-batched results only)."""
