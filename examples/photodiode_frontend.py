@@ -33,9 +33,16 @@ def frontend() -> adlin.Circuit:
     c.resistor("RF", "col", "base", "R_F")
     c.capacitor("CF", "col", "base", "C_F")
     c.bjt(
-        "Q1", c="col", b="base", e="gnd", polarity="npn",
-        saturation_current=2e-16, forward_beta=120.0, early_voltage=60.0,
-        base_emitter_capacitance=3e-12, base_collector_capacitance=0.6e-12,
+        "Q1",
+        c="col",
+        b="base",
+        e="gnd",
+        polarity="npn",
+        saturation_current=2e-16,
+        forward_beta=120.0,
+        early_voltage=60.0,
+        base_emitter_capacitance=3e-12,
+        base_collector_capacitance=0.6e-12,
         forward_transit_time=0.2e-9,
     )
     c.output("v_out", "col")

@@ -154,25 +154,27 @@ def _check_choice(option: str, name: str | None, valid: Sequence[str], model: st
 
 
 # -- the commands -------------------------------------------------------------------
-def _demo_notes(op, model) -> list:
+def _demo_notes(op, model, devices) -> list:
     from ..report import Quantity
-    from ..scenarios import ideal_output, sensor_ldo_loop
+    from ..scenarios import ideal_output, predicted_error, sensor_ldo_loop
 
     loop = sensor_ldo_loop(op=op, model=model)
     ideal = ideal_output(
         {k: float(v) for k, v in op.params.items()}, {k: float(v) for k, v in op.inputs.items()}
     )
-    out = float(op["v_out"])
-    notes = [
+    return [
         Quantity("ideal output v_ref (1 + R1/R2)", ideal, "V"),
-        Quantity("output error v_out - ideal", out - ideal, "V"),
+        Quantity("output error v_out - ideal", float(op["v_out"]) - ideal, "V"),
+        Quantity(
+            "predicted error g_m,P R_out (v_gate - v_mir) / (1 + T)",
+            predicted_error(op, devices, loop),
+            "V",
+        ),
         Quantity("loop gain T(0)", loop.dc, ""),
         Quantity("loop gain T(0) in dB", loop.dc_db, "dB"),
-        Quantity("loop-gain error scale, ideal / (1 + T(0))", ideal / (1 + abs(loop.dc)), "V"),
         Quantity("loop crossover frequency", loop.crossover_hz, "Hz"),
         Quantity("phase margin", loop.phase_margin_deg, "deg"),
     ]
-    return notes
 
 
 def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out=None) -> int:
@@ -199,7 +201,7 @@ def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out
     op = steady_state(system, inputs=inputs, params=params, guess=guess or None)
     model = linearize(system, op)
     devices = circuit.small_signal(op) if circuit is not None else None
-    notes = notes_for(op, model) if notes_for is not None else []
+    notes = notes_for(op, model, devices) if notes_for is not None else []
     summary = report.summarize(
         system, op, model, devices=devices, input=args.input, output=args.output, notes=notes
     )
@@ -288,8 +290,10 @@ def build_parser() -> argparse.ArgumentParser:
         prog=PROG,
         description="Bias point and exact small-signal model of a nonlinear circuit: poles, "
         "zeros, gains, device parameters and a normalized model.",
-        epilog="Results are models: measure prototypes; mains or high-energy designs follow "
-        "local electrical codes and licensed practice.",
+        epilog="Compiled programs are kept in $ADLIN_CACHE_DIR (default ~/.cache/adlin/jax; "
+        "empty turns the cache off), so repeated runs start faster. Results are models: "
+        "measure prototypes; mains or high-energy designs follow local electrical codes and "
+        "licensed practice.",
     )
     parser.add_argument(
         "--debug", action="store_true", default=False, help="show full tracebacks on errors"

@@ -52,7 +52,7 @@ class Normalized:
     """The dimensionless model: scales and what survives of the numbers."""
 
     time_scale_s: float
-    scales: tuple[tuple[str, float, str, str], ...]  # (name, value, unit, origin)
+    scales: tuple[tuple[str, str, float, str, str], ...]  # (kind, name, value, unit, origin)
     gains: tuple[tuple[str, float], ...]  # ("output/input", dimensionless DC gain)
     time_constant_ratios: tuple[float, ...]  # tau_k / T, slowest first
     poles: tuple[complex, ...]  # dimensionless poles
@@ -249,13 +249,13 @@ def _normalized(model, unit_of, warnings: list[str]) -> Normalized | None:
         return None
     origin = dict(nm.scale_origin)
     scales = []
-    for names, values in (
-        (nm.state_names, nm.state_scales),
-        (nm.input_names, nm.input_scales),
-        (nm.output_names, nm.output_scales),
+    for kind, names, values in (
+        ("state", nm.state_names, nm.state_scales),
+        ("input", nm.input_names, nm.input_scales),
+        ("output", nm.output_names, nm.output_scales),
     ):
         for name, value in zip(names, np.asarray(values), strict=True):
-            scales.append((name, float(value), unit_of(name), origin.get(name, "")))
+            scales.append((kind, name, float(value), unit_of(name), origin.get(name, "")))
     gains = tuple((k, float(v)) for k, v in nm.gains().items())
     ratios = tuple(float(r) for r in np.asarray(nm.time_constant_ratios()))
     poles = tuple(complex(p) for p in np.asarray(nm.poles()))

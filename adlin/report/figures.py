@@ -101,7 +101,15 @@ def bode_figure(summary: Summary):
     ph_ax.set_xlabel("frequency (Hz)")
     span = phase_span[1] - phase_span[0]
     ph_ax.yaxis.set_major_locator(MultipleLocator(45 if span <= 360 else 90))
-    mag_ax.legend(frameon=False, fontsize=8.5, loc="best", labelcolor=TEXT)
+    mag_ax.legend(
+        frameon=False,
+        fontsize=8.5,
+        labelcolor=TEXT,
+        loc="lower left",
+        bbox_to_anchor=(0.0, 1.04),
+        ncol=min(len(summary.pairs) + 1, 4),
+        borderaxespad=0.0,
+    )
     fig.suptitle(
         f"{summary.name}: small-signal frequency response",
         color=TEXT,
@@ -247,6 +255,11 @@ def pole_zero_figure(summary: Summary):
         zx, zy = fz(roots)
         spread.plot(zx, zy, label=f"zeros {i} → {o}", zorder=3, **zero_style(k))
     spread.set_ylim(-1.1, 1.1)
+    all_f = [f for f in fx if f > 0]
+    for _, roots in zero_sets:
+        all_f += [r.frequency_hz for r in roots if r.frequency_hz > 0]
+    if all_f:  # room around the outermost markers
+        spread.set_xlim(min(all_f) / 3.0, max(all_f) * 3.0)
     spread.set_xlabel("natural frequency |s| / 2π (Hz)")
     spread.set_ylabel("damping ratio ζ")
     spread.text(

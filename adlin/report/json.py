@@ -73,8 +73,12 @@ def to_dict(summary: Summary) -> dict[str, Any]:
         out["normalized"] = {
             "time_scale_s": _num(nm.time_scale_s),
             "scales": {
-                name: {"value": _num(v), "unit": unit, "origin": origin}
-                for name, v, unit, origin in nm.scales
+                kind + "s": {
+                    name: {"value": _num(v), "unit": unit, "origin": origin}
+                    for k, name, v, unit, origin in nm.scales
+                    if k == kind
+                }
+                for kind in ("state", "input", "output")
             },
             "gains": {name: _num(v) for name, v in nm.gains},
             "time_constant_ratios": [_num(r) for r in nm.time_constant_ratios],

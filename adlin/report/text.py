@@ -94,7 +94,7 @@ def _bias(summary: Summary) -> list:
     head = Text.assemble(
         ("Solved by ", DIM),
         (s["method"], "bold"),
-        (f" in {s['iterations']} iterations, ", DIM),
+        (f" in {s['iterations']} iteration{'' if s['iterations'] == 1 else 's'}, ", DIM),
         (status, DIM),
         (f"; largest residual {s['residual_norm']:.2g}.", DIM),
     )
@@ -142,7 +142,7 @@ def _roots(title: str, roots: list[Root], kind: str) -> list:
         "",
         ("#", "right"),
         ("s (rad/s)", "right"),
-        ("f (Hz)", "right"),
+        ("|s|/2π (Hz)", "right"),
         ("damping ζ", "right"),
         ("Q", "right"),
         ("τ (s)", "right"),
@@ -197,19 +197,22 @@ def _normalized(summary: Summary) -> list:
             (" (dominant time constant); every quantity divided by its scale below.", DIM),
         ),
     ]
-    scales = _table("", ("quantity", "left"), ("scale", "right"), ("origin", "left"))
-    for name, value, unit, origin in nm.scales:
-        scales.add_row(name, value_text(value, unit), Text(origin, style=DIM))
+    scales = _table("", ("quantity", "left"), ("", "left"), ("scale", "right"), ("origin", "left"))
+    for kind, name, value, unit, origin in nm.scales:
+        scales.add_row(
+            name, Text(kind, style=DIM), value_text(value, unit), Text(origin, style=DIM)
+        )
     gains = _table("", ("dimensionless gain", "left"), ("value", "right"))
     for name, value in nm.gains:
         gains.add_row(name.replace("/", " / "), _plain(value))
     ratios = _table("", ("#", "right"), ("τ_k / T", "right"))
     for k, r in enumerate(nm.time_constant_ratios, 1):
         ratios.add_row(str(k), f"{r:.3g}")
+    columns = [scales, gains, ratios] if nm.gains else [scales, ratios]
     grid = Table.grid(padding=(0, 4))
-    for _ in range(3):
+    for _ in columns:
         grid.add_column(vertical="top")
-    grid.add_row(scales, gains, ratios)
+    grid.add_row(*columns)
     out.append(grid)
     return out
 
