@@ -45,7 +45,8 @@ def did_you_mean(name: str, valid: "list[str] | tuple[str, ...]") -> str:
 
     close = difflib.get_close_matches(name, list(valid), n=3, cutoff=0.5)
     if close:
-        return f"did you mean {', '.join(repr(c) for c in close)}?"
+        return f"the closest valid {'name is' if len(close) == 1 else 'names are'} " + \
+            ", ".join(repr(c) for c in close)
     shown = ", ".join(repr(v) for v in list(valid)[:12])
     more = "" if len(valid) <= 12 else f" (and {len(valid) - 12} more)"
     return f"valid names are {shown}{more}" if valid else "there are no valid names"

@@ -20,6 +20,8 @@ def si(value: float, unit: str = "", digits: int = 4) -> str:
     if not unit or unit in ("1", "-"):
         return f"{v:.{digits}g}"
     mag = abs(v)
+    if mag < 0.9995e-18 or mag >= 1e15:
+        return f"{v:.{digits}g} {unit}"  # beyond the prefixes: plain scientific notation
     for scale, prefix in _PREFIXES:
         if mag >= scale * 0.9995:
             break

@@ -30,7 +30,7 @@ def test_wrong_output_shape():
 
 def test_missing_parameter_is_named():
     s = adlin.System(lambda x, u, p: x - p["Vref"], unknowns=("a",), params={"V_ref": 1.0})
-    with pytest.raises(adlin.ParameterError, match=r"reads parameter 'Vref'.*did you mean 'V_ref'"):
+    with pytest.raises(adlin.ParameterError, match=r"reads parameter 'Vref'.*closest valid name is 'V_ref'"):
         adlin.compile(s)
 
 

@@ -626,7 +626,7 @@ def test_element_errors(call, error, match):
         (lambda c: c.mosfet("M1", d="a", g="b", s="gnd", law="bsim"), "law must be one of"),
         (
             lambda c: c.diode("D1", "a", "gnd", saturation_curent=1e-14),
-            "did you mean 'saturation_current'",
+            "closest valid names are 'saturation_current'",
         ),
         (lambda c: c.bjt("Q1", c="a", b="b", e="gnd", forward_beta=[1.0]), "number or the name"),
         (
@@ -666,7 +666,7 @@ def test_failed_element_leaves_no_trace():
         (
             lambda c: (c.resistor("R1", "out", "gnd", 1.0), c.output("v", "ot")),
             adlin.ModelError,
-            "node 'ot'.*did you mean 'out'",
+            "node 'ot'.*closest valid name is 'out'",
         ),
         (
             lambda c: (c.resistor("R1", "out", "gnd", 1.0), c.output("v", 3)),

@@ -251,7 +251,7 @@ def test_unknown_set_name(no_cache, capsys):
     status, _, err = run_inprocess(
         ["analyze", str(EXAMPLES / "rc_ladder.py"), "--set", "Rr=1k"], capsys
     )
-    assert_one_line_error(status, err, "'Rr'", "did you mean 'R'")
+    assert_one_line_error(status, err, "'Rr'", "closest valid name is 'R'")
 
 
 @pytest.mark.parametrize("item", ["R", "=3", "R=abc", "R=1e999", "R=4.7 kk"])
