@@ -233,3 +233,16 @@ def test_pair_selection_errors():
     lin = _ladder_lin(1e3)
     with pytest.raises(adlin.ParameterError, match="unknown output 'v_9'"):
         lin.zeros(output="v_9")
+
+
+def test_compiled_poles_function_batches():
+    """CompiledSystem.poles: steady state + linearization + poles in one jitted call,
+    batched over parameter samples (ladder closed form, Morgan-Voyce 1959)."""
+    cs = adlin.compile(_LADDER)
+    u, x0 = _LADDER.input_vector(), cs.default_guess()
+    Rs = np.array([1e3, 3e3])
+    P = jnp.stack([_LADDER.param_vector({"R": R}) for R in Rs])
+    poles, ok = jax.vmap(lambda p: cs.poles(u, p, x0))(P)
+    assert np.asarray(ok).all()
+    for R, p in zip(Rs, np.asarray(poles), strict=True):
+        np.testing.assert_allclose(np.sort(p.real)[::-1], rc_ladder_poles(R, 1e-6), rtol=1e-12)
