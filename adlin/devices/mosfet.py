@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import jax
 import jax.numpy as jnp
 from jax import Array
 from jax.typing import ArrayLike
@@ -86,6 +85,13 @@ def square_law_currents(
     return _terminal_currents(p, sign * i)
 
 
+def _softplus(x):
+    """ln(1 + exp(x)) as max(x, 0) + log1p(exp(-|x|)): no overflow for large x, full
+    accuracy for very negative x, and plain primitives (jax.nn.softplus is a
+    nested jitted function whose per-call tracing cost showed in CLI start-up)."""
+    return jnp.maximum(x, 0.0) + jnp.log1p(jnp.exp(-jnp.abs(x)))
+
+
 def ekv_currents(
     v_d: ArrayLike,
     v_g: ArrayLike,
@@ -151,8 +157,8 @@ def ekv_currents(
     n = slope_factor
     ut = thermal_voltage(temperature)
     v_p = (vg - vb - threshold_voltage) / n
-    i_f = jax.nn.softplus((v_p - (vs - vb)) / (2.0 * ut)) ** 2
-    i_r = jax.nn.softplus((v_p - (vd - vb)) / (2.0 * ut)) ** 2
+    i_f = _softplus((v_p - (vs - vb)) / (2.0 * ut)) ** 2
+    i_r = _softplus((v_p - (vd - vb)) / (2.0 * ut)) ** 2
     i_spec = 2.0 * n * transconductance_parameter * ut**2
     i = i_spec * (i_f - i_r) * (1.0 + channel_length_modulation * jnp.abs(vd - vs))
     return _terminal_currents(p, i)
