@@ -155,11 +155,8 @@ class Circuit:
         - `name`, `a`, `b`: as for `resistor`.
         - `capacitance`: farads, a number or a declared parameter name.
         """
-        owner = self._start("capacitor", name)
-        a, b = self._two_nodes(owner, a, b)
-        with self._transaction():
-            value = self._value(owner, "capacitance", capacitance, name, "F", allow_input=False)
-            return self._add(Capacitor(name, a, b, value))
+        return self._linear_two_node(Capacitor, name, a, b, "capacitance", capacitance, "F",
+                                     allow_input=False)
 
     def inductor(self, name: str, a: str, b: str, inductance: float | str) -> str:
         """A linear inductor; adds the unknown ``i_<name>``, flowing from a to b.
@@ -169,11 +166,8 @@ class Circuit:
         - `name`, `a`, `b`: as for `resistor`.
         - `inductance`: henries, a number or a declared parameter name.
         """
-        owner = self._start("inductor", name)
-        a, b = self._two_nodes(owner, a, b)
-        with self._transaction():
-            value = self._value(owner, "inductance", inductance, name, "H", allow_input=False)
-            return self._add(Inductor(name, a, b, value))
+        return self._linear_two_node(Inductor, name, a, b, "inductance", inductance, "H",
+                                     allow_input=False)
 
     def voltage_source(self, name: str, plus: str, minus: str, voltage: float | str) -> str:
         """An independent voltage source, ``v_plus - v_minus = V``.
@@ -188,11 +182,7 @@ class Circuit:
         - `plus`, `minus`: node names.
         - `voltage`: volts, a number, a declared parameter or an input name.
         """
-        owner = self._start("voltage source", name)
-        plus, minus = self._two_nodes(owner, plus, minus)
-        with self._transaction():
-            value = self._value(owner, "voltage", voltage, name, "V")
-            return self._add(VoltageSource(name, plus, minus, value))
+        return self._linear_two_node(VoltageSource, name, plus, minus, "voltage", voltage, "V")
 
     def current_source(self, name: str, a: str, b: str, current: float | str) -> str:
         """An independent current source: I flows out of node a, through the
@@ -204,12 +194,7 @@ class Circuit:
         - `a`, `b`: node names.
         - `current`: amperes, a number, a declared parameter or an input name.
         """
-        owner = self._start("current source", name)
-        a, b = self._two_nodes(owner, a, b)
-        with self._transaction():
-            return self._add(
-                CurrentSource(name, a, b, self._value(owner, "current", current, name, "A"))
-            )
+        return self._linear_two_node(CurrentSource, name, a, b, "current", current, "A")
 
     def vccs(
         self,
@@ -719,6 +704,15 @@ class Circuit:
                 "does nothing; connect them to different nodes."
             )
         return tuple(pairs)
+
+    def _linear_two_node(self, cls, name, a, b, what: str, value, unit: str, *,
+                         allow_input: bool = True) -> str:
+        """Shared body of the linear two-terminal element methods."""
+        owner = self._start(cls.kind, name)
+        a, b = self._two_nodes(owner, a, b)
+        with self._transaction():
+            ref = self._value(owner, what, value, name, unit, allow_input=allow_input)
+            return self._add(cls(name, a, b, ref))
 
     def _value(
         self,
