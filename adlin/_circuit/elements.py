@@ -87,31 +87,41 @@ def _pair(at: Bias, a: str, b: str, value) -> Stamp:
     return [(at.row(a), value), (at.row(b), -value)]
 
 
-@dataclasses.dataclass(frozen=True, eq=False)
-class Resistor(AbstractElement):
-    """Linear resistor: current ``(v_a - v_b) / R`` from a to b."""
+class AbstractTwoNode(AbstractElement):
+    """A linear element between nodes a and b with one value, named `value_field`."""
 
-    kind: ClassVar[str] = "resistor"
-    name: str
+    value_field: ClassVar[str]
     a: str
     b: str
-    resistance: Ref
 
     def nodes(self):
         return (self.a, self.b)
 
     def refs(self):
-        return {"resistance": self.resistance}
+        return {self.value_field: getattr(self, self.value_field)}
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class Resistor(AbstractTwoNode):
+    """Linear resistor: current ``(v_a - v_b) / R`` from a to b."""
+
+    kind: ClassVar[str] = "resistor"
+    value_field: ClassVar[str] = "resistance"
+    name: str
+    a: str
+    b: str
+    resistance: Ref
 
     def currents(self, at):
         return _pair(at, self.a, self.b, (at.v(self.a) - at.v(self.b)) / at.value(self.resistance))
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
-class Capacitor(AbstractElement):
+class Capacitor(AbstractTwoNode):
     """Linear capacitor: charge ``C (v_a - v_b)`` on a, its negative on b."""
 
     kind: ClassVar[str] = "capacitor"
+    value_field: ClassVar[str] = "capacitance"
     name: str
     a: str
     b: str
@@ -121,12 +131,6 @@ class Capacitor(AbstractElement):
     def stores_charge(self):
         return True
 
-    def nodes(self):
-        return (self.a, self.b)
-
-    def refs(self):
-        return {"capacitance": self.capacitance}
-
     def currents(self, at):
         return []
 
@@ -135,7 +139,7 @@ class Capacitor(AbstractElement):
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
-class Inductor(AbstractElement):
+class Inductor(AbstractTwoNode):
     """Linear inductor with branch current ``i_<name>`` from a to b.
 
     Branch row: flux ``L i`` in q and ``-(v_a - v_b)`` in f, so that
@@ -143,6 +147,7 @@ class Inductor(AbstractElement):
     """
 
     kind: ClassVar[str] = "inductor"
+    value_field: ClassVar[str] = "inductance"
     name: str
     a: str
     b: str
@@ -156,12 +161,6 @@ class Inductor(AbstractElement):
     def has_branch(self):
         return True
 
-    def nodes(self):
-        return (self.a, self.b)
-
-    def refs(self):
-        return {"inductance": self.inductance}
-
     def currents(self, at):
         i = at.i(self.name)
         return _pair(at, self.a, self.b, i) + [
@@ -173,10 +172,11 @@ class Inductor(AbstractElement):
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
-class VoltageSource(AbstractElement):
+class VoltageSource(AbstractTwoNode):
     """Independent voltage source ``v_a - v_b = V``; ``i_<name>`` enters at a."""
 
     kind: ClassVar[str] = "voltage source"
+    value_field: ClassVar[str] = "voltage"
     name: str
     a: str
     b: str
@@ -186,12 +186,6 @@ class VoltageSource(AbstractElement):
     def has_branch(self):
         return True
 
-    def nodes(self):
-        return (self.a, self.b)
-
-    def refs(self):
-        return {"voltage": self.voltage}
-
     def currents(self, at):
         return _pair(at, self.a, self.b, at.i(self.name)) + [
             (at.branch_row(self.name), at.v(self.a) - at.v(self.b) - at.value(self.voltage))
@@ -199,20 +193,15 @@ class VoltageSource(AbstractElement):
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
-class CurrentSource(AbstractElement):
+class CurrentSource(AbstractTwoNode):
     """Independent current source: I flows from a, through the source, to b."""
 
     kind: ClassVar[str] = "current source"
+    value_field: ClassVar[str] = "current"
     name: str
     a: str
     b: str
     current: Ref
-
-    def nodes(self):
-        return (self.a, self.b)
-
-    def refs(self):
-        return {"current": self.current}
 
     def currents(self, at):
         return _pair(at, self.a, self.b, at.value(self.current))
