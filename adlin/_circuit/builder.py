@@ -444,29 +444,9 @@ class Circuit:
         sign = laws.polarity(owner, polarity, {"npn": 1, "pnp": -1})
         pairs = self._terminals(owner, {"c": c, "b": b, "e": e}, ("c", "b", "e"))
         dev = laws.devices()
-        values, ckeys, qkeys = laws.bind(owner, dev.bjt_currents, dev.bjt_charges, law_params)
-        order = ("c", "b", "e")
-        current = functools.partial(laws.call_terminals, dev.bjt_currents, order, sign, ckeys)
-        charge = (
-            None
-            if qkeys is None
-            else functools.partial(laws.call_terminals, dev.bjt_charges, order, sign, qkeys)
-        )
         junctions = (("b", "e"), ("b", "c")) if sign > 0 else (("e", "b"), ("c", "b"))
-        with self._transaction():
-            pmap = self._device_params(owner, name, values, None)
-            return self._add(
-                Device(
-                    name,
-                    pairs,
-                    current,
-                    charge,
-                    pmap,
-                    junctions=junctions,
-                    summary=bjt_summary,
-                    kind="bjt",
-                )
-            )
+        return self._law_device(owner, name, pairs, dev.bjt_currents, dev.bjt_charges, sign,
+                                law_params, junctions=junctions, summary=bjt_summary, kind="bjt")
 
     def mosfet(
         self,
@@ -506,19 +486,24 @@ class Circuit:
         choices = {"ekv": dev.ekv_currents, "square": dev.square_law_currents}
         if law not in choices:
             raise ModelError(f"{owner} law must be one of {list(choices)}, got {law!r}.")
-        values, ckeys, qkeys = laws.bind(owner, choices[law], dev.mosfet_charges, law_params)
-        order = ("d", "g", "s", "b")
-        current = functools.partial(laws.call_terminals, choices[law], order, sign, ckeys)
+        return self._law_device(owner, name, pairs, choices[law], dev.mosfet_charges, sign,
+                                law_params, summary=mosfet_summary, kind="mosfet")
+
+    def _law_device(self, owner, name, pairs, current_law, charge_law, sign, law_params,
+                    **device_options) -> str:
+        """Shared body of `bjt` and `mosfet`: bind an `adlin.devices` law pair to
+        the terminals (in the order of `pairs`) and add the Device."""
+        values, ckeys, qkeys = laws.bind(owner, current_law, charge_law, law_params)
+        order = tuple(t for t, _ in pairs)
+        current = functools.partial(laws.call_terminals, current_law, order, sign, ckeys)
         charge = (
             None
             if qkeys is None
-            else functools.partial(laws.call_terminals, dev.mosfet_charges, order, sign, qkeys)
+            else functools.partial(laws.call_terminals, charge_law, order, sign, qkeys)
         )
         with self._transaction():
             pmap = self._device_params(owner, name, values, None)
-            return self._add(
-                Device(name, pairs, current, charge, pmap, summary=mosfet_summary, kind="mosfet")
-            )
+            return self._add(Device(name, pairs, current, charge, pmap, **device_options))
 
     # -- outputs and building ----------------------------------------------------
     def output(self, name: str, what: Any, *, unit: str | None = None) -> str:
