@@ -23,3 +23,5 @@ from ._linear.pole_table import RootTable as RootTable
 from ._steady.newton import NewtonOptions as NewtonOptions
 from ._steady.operating_point import OperatingPoint as OperatingPoint
 from ._steady.solve import steady_state as steady_state
+from ._equilibria.find import steady_states as steady_states, SteadyStates as SteadyStates
+from ._equilibria.find import SteadyStatesOptions as SteadyStatesOptions
