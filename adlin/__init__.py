@@ -11,6 +11,7 @@ from ._errors import (
     SteadyStateError as SteadyStateError,
 )
 from . import devices as devices
+from . import strategies as strategies
 from ._system import Junction as Junction, System as System
 from ._circuit import Circuit as Circuit, SmallSignal as SmallSignal
 

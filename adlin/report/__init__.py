@@ -176,6 +176,7 @@ def summarize(
         "method": op.method,
         "converged": bool(op.converged),
         "iterations": int(op.iterations),
+        "evaluations": int(op.evaluations),
         "residual_norm": float(op.residual_norm),
         "message": op.message,
     }

@@ -91,10 +91,19 @@ def _quantities(rows: Iterable[Quantity]) -> Table:
 def _bias(summary: Summary) -> list:
     s = summary.solver
     status = "converged" if s["converged"] else s["message"]
+    # a strategy other than plain Newton is worth naming with its cost
+    long_names = {"conductance": "conductance stepping", "source": "source stepping",
+                  "pseudo-transient": "pseudo-transient continuation",
+                  "homotopy": "Newton homotopy"}
+    method = long_names.get(s["method"], s["method"])
+    effort = (f" in {s['iterations']} iteration{'' if s['iterations'] == 1 else 's'}, "
+              if s["method"] == "newton" else
+              f" and a Newton polish, {s['iterations']} steps, "
+              f"{s.get('evaluations', 0)} residual evaluations over every strategy tried, ")
     head = Text.assemble(
         ("Solved by ", DIM),
-        (s["method"], "bold"),
-        (f" in {s['iterations']} iteration{'' if s['iterations'] == 1 else 's'}, ", DIM),
+        (method, "bold"),
+        (effort, DIM),
         (status, DIM),
         (f"; largest residual {s['residual_norm']:.2g}.", DIM),
     )
