@@ -30,6 +30,7 @@ jitted solve is compiled once and reused as roots are added.
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 from collections.abc import Mapping, Sequence
 
@@ -76,6 +77,11 @@ def deflated_solver(system: System, options: NewtonOptions, power: float, shift:
     from .._compile import compile
 
     table = compile(system, options).junctions
+    # Full (junction-limited) Newton steps on G, no Armijo search: near known
+    # roots M makes |G| a poor merit function, and the search stalls there
+    # (on the tunnel-diode circuit of Khalil, Example 2.1, the damped run
+    # stopped at v = 0.02 V while full steps reached the third state).
+    options = dataclasses.replace(options, max_backtracks=0)
 
     def solve(u, p, x0, roots, mask, scale):
         def deflated(x):

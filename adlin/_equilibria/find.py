@@ -69,7 +69,7 @@ def _capacity(max_states: int) -> int:
     return max(8, 1 << (max_states - 1).bit_length())
 
 
-def _deflate_from(search: _Search, x0, how: str) -> None:
+def _deflate_from(search: _Search, x0, how: str, direction: float = 1.0) -> None:
     """Deflated Newton from one guess, repeated until it fails or finds nothing new."""
     opts = search.options
     solve = deflated_solver(search.system, opts.newton_options, float(opts.power),
@@ -84,7 +84,7 @@ def _deflate_from(search: _Search, x0, how: str) -> None:
             roots[k] = np.asarray(op.x)
             mask[k] = True
         scale = search.scale(x0)
-        start = _off_known_roots(x0, roots[mask], scale)
+        start = _off_known_roots(x0, roots[mask], scale, direction)
         x, status, _, evals = solve(search.u, search.p, start, roots, mask, scale)
         search.evaluations += int(evals)
         if int(status) != 0:
@@ -93,14 +93,15 @@ def _deflate_from(search: _Search, x0, how: str) -> None:
             return
 
 
-def _off_known_roots(x0, roots, scale, radius: float = 1e-6, step: float = 1e-2):
+def _off_known_roots(x0, roots, scale, sign: float, radius: float = 1e-6, step: float = 1e-2):
     """Move a start that sits on a known root off it.
 
     At a known root the deflated residual is 0 * inf; a little away from it
     the deflated Newton step points away from the root (it is the Newton
     step towards it times 1/(1 - p) = -1 for p = 2), so a small move in a
-    fixed, seeded direction is enough.  A generic direction avoids symmetric
-    subspaces (a mirror-symmetric latch started on its symmetry line).
+    fixed, seeded direction (times `sign`) is enough.  A generic direction
+    avoids symmetric subspaces (a mirror-symmetric latch started on its
+    symmetry line).
     """
     if roots.size == 0:
         return x0
@@ -108,7 +109,7 @@ def _off_known_roots(x0, roots, scale, radius: float = 1e-6, step: float = 1e-2)
     if dist.min() > radius:
         return x0
     direction = np.random.default_rng(0x5EED).standard_normal(x0.shape[0])
-    return x0 + step * scale * direction / np.max(np.abs(direction))
+    return x0 + sign * step * scale * direction / np.max(np.abs(direction))
 
 
 def _sorted(search: _Search) -> list[int]:
@@ -223,6 +224,17 @@ def steady_states(
             _deflate_from(search, x0, f"deflation from guess {k}")
         else:
             search.polish(x0, f"newton from guess {k}")
+    if deflation:
+        # Every state found is a start too: just off a known root the deflated
+        # step points away from it, along the move's direction, so two moves
+        # in opposite directions explore both sides (e.g. from a latch's
+        # metastable point towards each of its stable states).
+        seen = 0
+        while seen < len(search.states) and not search.full:
+            x0 = np.asarray(search.states[seen].x)
+            for sign in (1.0, -1.0):
+                _deflate_from(search, x0, f"deflation from state {seen}", sign)
+            seen += 1
 
     if not search.states:
         worst = min(search.failures, default=None,
