@@ -26,3 +26,6 @@ from ._steady.operating_point import OperatingPoint as OperatingPoint
 from ._steady.solve import steady_state as steady_state
 from ._equilibria.find import steady_states as steady_states, SteadyStates as SteadyStates
 from ._equilibria.find import SteadyStatesOptions as SteadyStatesOptions
+from ._continuation.branch import Branch as Branch
+from ._continuation.options import TrackOptions as TrackOptions
+from ._continuation.track import track as track
