@@ -136,7 +136,7 @@ def steady_states(
     """Several distinct steady states at one set of inputs and parameters, classified.
 
     States come from two sources.  The source ramp scales every input by s
-    from 0 to `options.ramp_stop` and follows the branch of steady states by
+    from 0 to `options.ramp_stop` (default 2) and follows the branch of steady states by
     pseudo-arclength continuation; every crossing of s = 1 is a state (an
     S-shaped branch gives three).  Deflation (Farrell, Birkisson & Funke,
     SIAM J. Sci. Comput. 2015) runs Newton on the residual multiplied by a
@@ -208,15 +208,19 @@ def steady_states(
                      where=f"at guess {k}")
 
     search = _Search(system, compiled, u, p, options, int(max_states))
+    ramp_note = "not run"
     if ramp and system.inputs:
         from .ramp import ramp_candidates
 
-        candidates, evals = ramp_candidates(system, u, p, starts[-1], options)
-        search.evaluations += evals
-        for x in candidates:
+        walked = ramp_candidates(compiled, u, p, starts[-1], options)
+        search.evaluations += walked.evaluations
+        ramp_note = walked.reason
+        for x in walked.candidates:
             if search.full:
                 break
             search.polish(x, "source ramp")
+    elif ramp:
+        ramp_note = "the model has no inputs to ramp"
     for k, x0 in enumerate(starts):
         if search.full:
             break
@@ -255,4 +259,5 @@ def steady_states(
         found_by=tuple(search.found_by[i] for i in order),
         evaluations=search.evaluations,
         marginal_tol=options.marginal_tol,
+        ramp_note=ramp_note,
     )

@@ -39,7 +39,10 @@ class SteadyStatesOptions(eqx.Module):
     - `marginal_tol`: a pole with |Re p| <= marginal_tol |p| counts as on the
       imaginary axis (damping ratio below it), see `classify_poles`.
     - `ramp_stop`: the source ramp scales every input by s from 0 to this
-      value (> 1, so that folds just beyond the nominal sources are passed).
+      value (> 1).  The branch must get past the fold beyond s = 1 to come
+      back and cross s = 1 again, and a fold may lie well past the nominal
+      sources: the tunnel-diode circuit of Khalil's Example 2.1 folds at
+      s = 1.37, so the default is 2.
     - `ramp_max_steps`: step limit of the continuation along the ramp.
     - `newton`: `NewtonOptions` for the deflated and the polishing Newton
       solves (default settings if None).
@@ -50,7 +53,7 @@ class SteadyStatesOptions(eqx.Module):
     scales: tuple[tuple[str, float], ...] = eqx.field(static=True, default=(), converter=_items)
     distinct_rtol: float = eqx.field(static=True, default=1e-6)
     marginal_tol: float = eqx.field(static=True, default=1e-6)
-    ramp_stop: float = eqx.field(static=True, default=1.2)
+    ramp_stop: float = eqx.field(static=True, default=2.0)
     ramp_max_steps: int = eqx.field(static=True, default=400)
     newton: NewtonOptions | None = eqx.field(static=True, default=None)
 

@@ -28,9 +28,12 @@ class SteadyStates(eqx.Module):
       ``"deflation from guess k"`` (k indexes the guesses tried, the user's
       first, then the all-zero guess) or ``"newton from guess k"`` (deflation
       switched off).
-    - `evaluations`: model residual evaluations spent in all (a Jacobian
-      counts as n evaluations).
+    - `evaluations`: model residual evaluations spent by the Newton and
+      deflated Newton solves (a Jacobian counts as n evaluations); the
+      continuation steps of the source ramp are not counted.
     - `marginal_tol`: the tolerance the labels were made with.
+    - `ramp_note`: how the source ramp ended ("reached the stop value", or
+      why it stopped or was not run).
 
     `len()`, iteration (over the operating points) and integer indexing work;
     `stable` is the subset of asymptotically stable states; `table()` gives
@@ -43,6 +46,7 @@ class SteadyStates(eqx.Module):
     found_by: tuple[str, ...] = eqx.field(static=True)
     evaluations: int = eqx.field(static=True)
     marginal_tol: float = eqx.field(static=True, default=1e-6)
+    ramp_note: str = eqx.field(static=True, default="not run")
 
     def __len__(self) -> int:
         return len(self.states)
@@ -80,6 +84,7 @@ class SteadyStates(eqx.Module):
             found_by=tuple(self.found_by[i] for i in keep),
             evaluations=self.evaluations,
             marginal_tol=self.marginal_tol,
+            ramp_note=self.ramp_note,
         )
 
     def table(self) -> list[dict]:
