@@ -74,7 +74,7 @@ def _run(family, x0, start, stop, args, floors, *, n_poles, n_out, param, unknow
         raise AdlinError(f"max_points must be at least 2, got {max_points}.")
     if progress is not None and not callable(progress):
         raise AdlinError("progress must be a function progress(fraction_done, points) or None.")
-    crossings = tuple(_float("crossings", c) for c in crossings)
+    crossings = tuple(sorted({_float("crossings", c) for c in crossings}))
     step, min_step, max_step = _steps(start, stop, step, min_step, max_step)
     solver = Solver(engine_for(family), args,
                     (opts.rtol, opts.ftol, opts.update_tol), opts.max_corrector_iterations)
@@ -95,6 +95,7 @@ def track(
     inputs: Mapping[str, Any] | None = None,
     params: Mapping[str, Any] | None = None,
     guess: Any = None,
+    strategy: Any = "auto",
     step: float | None = None,
     min_step: float | None = None,
     max_step: float | None = None,
@@ -128,6 +129,7 @@ def track(
     - `start`, `stop`: the range, in the parameter's units.
     - `inputs`, `params`: other values (dicts by name), as for `steady_state`.
     - `guess`: start guess for the first steady state (as for `steady_state`).
+    - `strategy`: the `steady_state` strategy for the first point.
     - `step`: first step length, in parameter units (default 1/50 of the
       range); steps are measured along the branch in a weighted norm and the
       parameter moves by at most one step per step (see
@@ -175,7 +177,7 @@ def track(
     compiled = compile(system)
     n_poles, n_out = compiled.structure.n_dynamic, len(system.outputs)
     names = dict(param=param, unknown_names=system.unknowns, output_names=system.outputs)
-    op = steady_state(system, inputs, params, guess, throw=False)
+    op = steady_state(system, inputs, params, guess, strategy=strategy, throw=False)
     if not bool(op.converged):
         return _empty(system.n, n_poles, n_out, reason=(
             f"no steady state at the start {param}={start:.6g}: " + diagnose(system, op)),
