@@ -18,34 +18,25 @@ value turns the cache off), else ``$XDG_CACHE_HOME/adlin/jax`` or
 from __future__ import annotations
 
 import argparse
-import math
 import os
-import re
 import sys
 from collections.abc import Sequence
 from pathlib import Path
 
+from .options import (
+    CommandError,
+    _check_choice,
+    parse_assignments,
+    parse_number,
+    split_settings,
+)
+
+# parse_* and CommandError are re-exported: tests and subcommands import them from here
+__all__ = ["CommandError", "build_parser", "main", "parse_assignments", "parse_number"]
+
 PROG = "adlin"
 EXIT_USER = 2
 EXIT_INTERNAL = 1
-
-_PREFIX = {
-    "T": 1e12,
-    "G": 1e9,
-    "M": 1e6,
-    "k": 1e3,
-    "m": 1e-3,
-    "u": 1e-6,
-    "µ": 1e-6,
-    "n": 1e-9,
-    "p": 1e-12,
-    "f": 1e-15,
-}
-_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([TGMkmuµnpf]?)\s*$")
-
-
-class CommandError(Exception):
-    """A malformed command line that argparse itself does not catch."""
 
 
 # -- persistent compilation cache ---------------------------------------------------
@@ -78,79 +69,6 @@ def configure_cache() -> Path | None:
     jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.0)
     jax.config.update("jax_persistent_cache_min_entry_size_bytes", -1)
     return path
-
-
-# -- NAME=VALUE ---------------------------------------------------------------------
-def parse_number(text: str) -> float:
-    """A float, optionally with an SI prefix: '4.7u' -> 4.7e-6, '10k' -> 1e4.
-
-    **Raises:** `ValueError` for anything else (including 'inf' and 'nan').
-    """
-    m = _NUMBER.match(text)
-    if not m:
-        raise ValueError(text)
-    value = float(m.group(1)) * _PREFIX.get(m.group(2), 1.0)
-    if not math.isfinite(value):
-        raise ValueError(text)
-    return value
-
-
-def parse_assignments(items: Sequence[str] | None, option: str) -> dict[str, float]:
-    """``["R1=10k", "v_in=0.6"]`` -> ``{"R1": 1e4, "v_in": 0.6}``.
-
-    **Raises:** `CommandError` naming the malformed item.
-    """
-    out: dict[str, float] = {}
-    for item in items or ():
-        name, sep, value = item.partition("=")
-        name = name.strip()
-        if not sep or not name:
-            raise CommandError(
-                f"{option} {item!r} is not NAME=VALUE; write it like "
-                f"{option} R1=4.7k (SI prefixes T G M k m u n p f allowed)."
-            )
-        try:
-            out[name] = parse_number(value)
-        except ValueError:
-            raise CommandError(
-                f"{option} {item!r}: {value.strip()!r} is not a finite number; "
-                "write e.g. 4.7e3, 4.7k or 0.6."
-            ) from None
-    return out
-
-
-def split_settings(system, settings: dict[str, float]) -> tuple[dict[str, float], dict[str, float]]:
-    """Route ``--set`` values to the System's inputs and parameters by name.
-
-    **Raises:** `ParameterError` for a name that is neither.
-    """
-    from .._errors import ParameterError, did_you_mean
-
-    inputs, params = {}, {}
-    valid = list(system.inputs) + list(system.param_names)
-    for name, value in settings.items():
-        if name in system.inputs:
-            inputs[name] = value
-        elif name in system.param_names:
-            params[name] = value
-        else:
-            hint = did_you_mean(name, valid)
-            raise ParameterError(
-                f"--set {name}=...: {system.name!r} has no input or parameter "
-                f"{name!r}; {hint}{'' if hint.endswith('?') else '.'}"
-            )
-    return inputs, params
-
-
-def _check_choice(option: str, name: str | None, valid: Sequence[str], model: str) -> None:
-    from .._errors import ParameterError, did_you_mean
-
-    if name is not None and name not in valid:
-        hint = did_you_mean(name, valid)
-        raise ParameterError(
-            f"{option} {name}: {model!r} has no such {option[2:]}; "
-            f"{hint}{'' if hint.endswith('?') else '.'}"
-        )
 
 
 # -- the commands -------------------------------------------------------------------
@@ -258,25 +176,28 @@ class _Parser(argparse.ArgumentParser):
 
 
 def build_parser() -> argparse.ArgumentParser:
-    common = argparse.ArgumentParser(add_help=False)
-    common.add_argument(
+    from .track import add_track_command
+
+    base = argparse.ArgumentParser(add_help=False)
+    base.add_argument(
         "--debug",
         action="store_true",
         default=argparse.SUPPRESS,
         help="show full tracebacks on errors",
     )
-    common.add_argument(
+    base.add_argument(
         "--set",
         action="append",
         metavar="NAME=VALUE",
         help="override an input or parameter (repeatable; SI prefixes allowed, e.g. R1=4.7k)",
     )
-    common.add_argument(
+    base.add_argument(
         "--json", action="store_true", help="print the report as JSON instead of tables"
     )
-    common.add_argument(
+    base.add_argument(
         "--plots", metavar="DIR", help="write bode.png and poles_zeros.png into DIR"
     )
+    common = argparse.ArgumentParser(add_help=False, parents=[base])
     common.add_argument(
         "--input", metavar="NAME", help="input for the zero table and the Bode plot (default: all)"
     )
@@ -327,6 +248,7 @@ def build_parser() -> argparse.ArgumentParser:
         help="starting value of an unknown for the bias-point solve (repeatable)",
     )
     analyze.set_defaults(func=cmd_analyze)
+    add_track_command(sub, base)
     return parser
 
 
