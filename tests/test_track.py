@@ -212,6 +212,61 @@ def test_generic_family_engine():
     assert list(np.asarray(b.segments.stable)) == [True, False, True]
 
 
+def test_fold_left_approximate_when_extended_system_is_cut_short():
+    """With one locating iteration the extended system cannot converge: each
+    fold is still reported, flagged approximate, with the reason in the notes,
+    and lies within the bracketing samples (Strogatz sec. 3.6 for the values)."""
+    b = adlin.track(s_curve(), "r", -1.0, 1.0, options=adlin.TrackOptions(max_locate_iterations=1))
+    assert len(b.folds) == 2 and not np.any(np.asarray(b.folds.exact))
+    assert len(b.notes) == 2 and all("not an exact fold" in n for n in b.notes)
+    for k in range(2):
+        i = int(b.folds.index[k])
+        lo, hi = sorted((float(b.values[i]), float(b.values[i + 1])))
+        assert lo - 0.05 <= float(b.folds.values[k]) <= hi + 0.05
+    assert abs(float(b.folds.values[0]) - R_FOLD) < 0.05
+    assert "(approximate)" in b.summary()
+
+
+@functools.cache
+def cubic_load_line() -> adlin.System:
+    """Source v_s - R - node n; from n to ground a capacitor and a cubic
+    negative-conductance element i = g (v^3 / (3 V0^2) - v).  With R g > 1 the
+    load line cuts the cubic three times over a range of v_s: an S-curve in the
+    source voltage, with folds where 1/R + di/dv = 0 (solved with sympy in the
+    test)."""
+    c = adlin.Circuit("cubic_load_line")
+    c.input("v_s", -1.0, unit="V")
+    c.voltage_source("V1", "in", "gnd", "v_s")
+    c.resistor("R1", "in", "n", 1e3)
+    c.capacitor("C1", "n", "gnd", 1e-9)
+    c.two_terminal("D1", "n", "gnd", current=lambda v, p: p["g"] * (v**3 / (3 * p["V0"] ** 2) - v),
+                   params={"g": 2e-3, "V0": 0.5})
+    c.output("v_n", "n")
+    return c.build()
+
+
+def test_circuit_source_sweep_through_folds_matches_sympy():
+    """Folds of (v - v_s)/R + g (v^3/(3 V0^2) - v) = 0 in v_s, from sympy's exact
+    solution of the fold conditions; stable exactly where 1/R + di/dv > 0 (the
+    node's one pole is -(1/R + di/dv)/C)."""
+    import sympy as sp
+
+    v, vs = sp.symbols("v v_s", real=True)
+    R, g, V0 = sp.Integer(1000), sp.Rational(2, 1000), sp.Rational(1, 2)
+    kcl = (v - vs) / R + g * (v**3 / (3 * V0**2) - v)
+    folds = sp.solve([kcl, sp.diff(kcl, v)], [v, vs], dict=True)
+    expect = sorted((float(f[vs]), float(f[v])) for f in folds)
+    b = adlin.track(cubic_load_line(), "v_s", -1.0, 1.0)
+    assert b.complete and len(b.folds) == 2 and np.all(np.asarray(b.folds.exact))
+    got = sorted(zip(np.asarray(b.folds.values), b.folds.x[:, b.unknown_names.index("v_n")],
+                     strict=True))
+    np.testing.assert_allclose(np.asarray(got, dtype=float), np.asarray(expect), atol=1e-9)
+    vn = b["v_n"]
+    slope = 1 / 1e3 + 2e-3 * (vn**2 / 0.25 - 1)
+    np.testing.assert_array_equal(np.asarray(b.stable), slope > 0)
+    np.testing.assert_allclose(np.asarray(b.poles)[:, 0].real, -slope / 1e-9, rtol=1e-8)
+
+
 # --- Hopf points --------------------------------------------------------------------------------
 
 

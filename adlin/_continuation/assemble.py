@@ -90,12 +90,24 @@ def assemble(walk: Walk, solver: Solver, n: int, n_poles: int, n_out: int, *,
     stable = stability(poles)
     residual = np.array([p.residual for p in pts], dtype=float)
     arclength = np.concatenate([[0.0], np.cumsum(walk.hs[: max(k - 1, 0)])])[:k]
-    folds = find_folds(walk, solver, opts, param)
-    hopf = find_hopf(walk, solver, opts, param) if n_poles else []
-    cross = find_crossings(walk, solver, crossings, opts, span)
+    failures: list[str] = []
+
+    def guarded(what, find, *a):
+        # the walked samples are the result; a failure while locating special
+        # points must not lose them, so it becomes a note instead
+        try:
+            return find(*a)
+        except Exception as err:  # noqa: BLE001
+            failures.append(f"{what} could not be located: {type(err).__name__}: {err}")
+            return []
+
+    folds = guarded("folds", find_folds, walk, solver, opts, param)
+    hopf = guarded("Hopf points", find_hopf, walk, solver, opts, param) if n_poles else []
+    cross = guarded("crossings", find_crossings, walk, solver, crossings, opts, span)
     events = {f.index: float(f.y[n]) for f in folds}
     events.update({h.index: float(h.y[n]) for h in hopf})
-    notes = tuple(f.note for f in folds if f.note) + tuple(h.note for h in hopf if h.note)
+    notes = (tuple(f.note for f in folds if f.note) + tuple(h.note for h in hopf if h.note)
+             + tuple(failures))
 
     def arr(rows, width=None, dtype=float):
         a = np.array(rows, dtype=dtype)
