@@ -15,9 +15,10 @@ shift keeps G from vanishing as ||x|| grows (with shift 1, M >= 1, so
 |G| >= |f|: a small G is a small f).
 
 The norm is weighted, ||d||_W^2 = sum_i (d_i / s_i)^2 with s_i the typical
-size of unknown i (`unknown_scales`), so a 2 mA branch current and a 2 V node
-voltage count alike; without it the currents' differences would be
-invisible next to the voltages'.
+size of unknown i (`unknown_scales`: its largest magnitude at the states
+known, at least 1 V for a voltage and 1 mA for a current), so a 2 mA branch
+current and a 2 V node voltage count alike; without it the currents'
+differences would be invisible next to the voltages'.
 
 The deflated Newton step is the Newton step of f scaled by
 1 / (1 - grad(ln M) . dx) (Sherman-Morrison on the rank-one term of dG/dx;
@@ -93,33 +94,32 @@ def deflated_solver(system: System, options: NewtonOptions, power: float, shift:
     return jax.jit(solve)
 
 
+# Smallest scale by unit: below these an unknown's size says nothing about how
+# far apart two states are (the same floors as the continuation's arclength
+# norm, `adlin._continuation.options.TrackOptions`).
+UNIT_FLOORS = {"V": 1.0, "A": 1e-3}
+
+
 def unknown_scales(
     system: System,
     points: Sequence[np.ndarray],
     fixed: Mapping[str, float] | None = None,
-    floor_fraction: float = 1e-3,
 ) -> np.ndarray:
     """Typical size of each unknown, for the weighted distance between states.
 
-    Unknowns are grouped by unit (`System.unit`: V, A, or the declared unit);
-    the scale of an unknown is the largest magnitude it takes at `points`,
-    floored at `floor_fraction` of the largest magnitude in its group (so an
-    unknown that is zero at every state still gets the group's size), and at
-    1 in the group's unit when the whole group is zero.  `fixed` overrides
-    scales by name.
+    The scale of an unknown is the largest magnitude it takes at `points`,
+    but at least a floor given by its unit (`System.unit`): 1 V for
+    voltages, 1 mA for currents, 1 for anything else.  Without the floor an
+    unknown that is (nearly) zero at every state known so far would make any
+    move along it look infinitely far.  `fixed` overrides scales by name.
 
     **Returns:** a float64 array (n,) of positive scales.
     """
-    n = system.n
-    mags = np.zeros(n)
+    mags = np.zeros(system.n)
     for x in points:
         mags = np.maximum(mags, np.abs(np.asarray(x, dtype=float)))
-    units = [system.unit(name) for name in system.unknowns]
-    scale = np.empty(n)
-    for i, unit in enumerate(units):
-        group = max(mags[j] for j in range(n) if units[j] == unit)
-        floor = floor_fraction * group if group > 0 else 1.0
-        scale[i] = max(mags[i], floor)
+    floors = np.array([UNIT_FLOORS.get(system.unit(name), 1.0) for name in system.unknowns])
+    scale = np.maximum(mags, floors)
     for name, value in (fixed or {}).items():
         scale[system.unknowns.index(name)] = float(value)
     return scale

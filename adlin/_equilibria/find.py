@@ -224,10 +224,11 @@ def steady_states(
     for k, x0 in enumerate(starts):
         if search.full:
             break
+        # plain (damped) Newton first: deflated Newton takes full steps, which
+        # can cycle where the line search would not (x' = 0.5 + x - x^3 from 0)
+        search.polish(x0, f"newton from guess {k}")
         if deflation:
             _deflate_from(search, x0, f"deflation from guess {k}")
-        else:
-            search.polish(x0, f"newton from guess {k}")
     if deflation:
         # Every state found is a start too: just off a known root the deflated
         # step points away from it, along the move's direction, so two moves

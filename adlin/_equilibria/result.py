@@ -25,9 +25,10 @@ class SteadyStates(eqx.Module):
       focus"``, ``"saddle"``, ``"unstable node"``, ``"unstable focus"``,
       ``"marginal"`` or ``"static"`` (see `adlin._equilibria.classify`).
     - `found_by`: how each state was found first: ``"source ramp"``,
-      ``"deflation from guess k"`` (k indexes the guesses tried, the user's
-      first, then the all-zero guess) or ``"newton from guess k"`` (deflation
-      switched off).
+      ``"newton from guess k"`` (plain Newton; k indexes the guesses tried,
+      the user's first, then the all-zero guess), ``"deflation from guess
+      k"`` or ``"deflation from state j"`` (deflated Newton restarted next to
+      state j in the order found, not the sorted order).
     - `evaluations`: model residual evaluations spent by the Newton and
       deflated Newton solves (a Jacobian counts as n evaluations); the
       continuation steps of the source ramp are not counted.
