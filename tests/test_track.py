@@ -290,6 +290,16 @@ def test_van_der_pol_hopf_at_mu_zero():
     assert float(b.segments.stop[0]) == pytest.approx(0.0, abs=1e-10)
 
 
+def test_hopf_point_on_a_sample():
+    """Fixed steps of 0.05 from mu = -0.5 put a sample on mu = 0 itself (up to
+    rounding): the Hopf point is still reported once, exactly (Strogatz sec. 7.6)."""
+    b = adlin.track(van_der_pol(-0.5), "mu", -0.5, 0.5, step=0.05, max_step=0.05)
+    assert np.min(np.abs(np.asarray(b.values))) < 1e-12
+    assert len(b.hopf) == 1 and bool(b.hopf.exact[0]) and not b.notes
+    assert float(b.hopf.values[0]) == pytest.approx(0.0, abs=1e-12)
+    assert float(b.hopf.omega[0]) == pytest.approx(1.0, rel=1e-12)
+
+
 def test_wien_bridge_oscillates_at_gain_three():
     """Sedra & Smith, Microelectronic Circuits (7th ed., sec. 18.2, from memory):
     the poles cross the imaginary axis at K = 3 with omega = 1/(RC)."""

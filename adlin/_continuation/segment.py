@@ -89,6 +89,10 @@ def illinois(point_at: Callable[[float], Point], g: Callable[[float, Point], flo
     **Returns:** (point, converged); the point is the last one evaluated
     (None if the corrector failed at the first trial).
     """
+    if ga == 0 or gb == 0:  # a sample is the root itself
+        s = 0.0 if ga == 0 else h
+        pt = point_at(s)
+        return (pt, True) if pt.ok and g(s, pt) == 0 else (None, False)
     a, b, fa, fb = 0.0, h, ga, gb
     best: Point | None = None
     for _ in range(max_iter):
