@@ -77,7 +77,7 @@ def deflated_solver(system: System, options: NewtonOptions, power: float, shift:
     """
     from .._compile import compile
 
-    table = compile(system, options).junctions
+    table = compile(system).junctions
     # Full (junction-limited) Newton steps on G, no Armijo search: near known
     # roots M makes |G| a poor merit function, and the search stalls there
     # (on the tunnel-diode circuit of Khalil, Example 2.1, the damped run

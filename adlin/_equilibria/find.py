@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -72,8 +73,9 @@ def _capacity(max_states: int) -> int:
 def _deflate_from(search: _Search, x0, how: str, direction: float = 1.0) -> None:
     """Deflated Newton from one guess, repeated until it fails or finds nothing new."""
     opts = search.options
-    solve = deflated_solver(search.system, opts.newton_options, float(opts.power),
-                            float(opts.shift))
+    newton = dataclasses.replace(opts.newton_options,
+                                 max_iterations=opts.deflation_max_iterations)
+    solve = deflated_solver(search.system, newton, float(opts.power), float(opts.shift))
     cap = _capacity(search.max_states)
     n = search.system.n
     x0 = np.asarray(x0, dtype=float)
@@ -212,7 +214,7 @@ def steady_states(
     if ramp and system.inputs:
         from .ramp import ramp_candidates
 
-        walked = ramp_candidates(compiled, u, p, starts[-1], options)
+        walked = ramp_candidates(compiled, u, p, zero, options)
         search.evaluations += walked.evaluations
         ramp_note = walked.reason
         for x in walked.candidates:

@@ -44,6 +44,9 @@ class SteadyStatesOptions(eqx.Module):
       sources: the tunnel-diode circuit of Khalil's Example 2.1 folds at
       s = 1.37, so the default is 2.
     - `ramp_max_steps`: step limit of the continuation along the ramp.
+    - `deflation_max_iterations`: iteration limit of each deflated Newton run
+      (full steps: a run that has not converged by then is wandering, and
+      every search ends with one such run per start).
     - `newton`: `NewtonOptions` for the deflated and the polishing Newton
       solves (default settings if None).
     """
@@ -55,6 +58,7 @@ class SteadyStatesOptions(eqx.Module):
     marginal_tol: float = eqx.field(static=True, default=1e-6)
     ramp_stop: float = eqx.field(static=True, default=2.0)
     ramp_max_steps: int = eqx.field(static=True, default=400)
+    deflation_max_iterations: int = eqx.field(static=True, default=100)
     newton: NewtonOptions | None = eqx.field(static=True, default=None)
 
     def __check_init__(self):
@@ -69,6 +73,8 @@ class SteadyStatesOptions(eqx.Module):
                                    f"sources, got {self.ramp_stop}"),
             (self.ramp_max_steps >= 1,
              f"ramp_max_steps must be at least 1, got {self.ramp_max_steps}"),
+            (self.deflation_max_iterations >= 1, "deflation_max_iterations must be at least 1, "
+                                                 f"got {self.deflation_max_iterations}"),
             (self.newton is None or isinstance(self.newton, NewtonOptions),
              "newton must be a NewtonOptions or None"),
         )
