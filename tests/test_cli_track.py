@@ -23,30 +23,13 @@ from pathlib import Path
 import numpy as np
 import pytest
 import scipy.optimize
+from tunnel_diode_reference import R_S, V_PEAK, C, L, bias_for, diode_conductance
 
 from adlin.cli.main import main
 
 ROOT = Path(__file__).resolve().parents[1]
 EXAMPLE = ROOT / "examples" / "tunnel_diode_bias.py"
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
-
-# the example's values
-R_S, L, C = 1e3, 100e-6, 10e-12
-I_PEAK, V_PEAK, I_S, V_T = 1e-3, 0.1, 1e-10, 0.0259 * 1.5
-
-
-def diode_current(v):
-    return I_PEAK * (v / V_PEAK) * math.exp(1 - v / V_PEAK) + I_S * math.expm1(v / V_T)
-
-
-def diode_conductance(v):
-    t = v / V_PEAK
-    return I_PEAK / V_PEAK * (1 - t) * math.exp(1 - t) + I_S / V_T * math.exp(v / V_T)
-
-
-def bias_for(v):
-    return v + R_S * diode_current(v)
-
 
 def reference_points():
     """(kind, v_bias, v_diode, omega) of the folds and Hopf points, from brentq."""

@@ -1,8 +1,10 @@
 """The ``adlin`` command: bias point, small-signal model and report of a circuit.
 
-    adlin demo [--plots DIR] [--json] [--set NAME=VALUE ...]
+    adlin demo [--plots DIR] [--json] [--set NAME=VALUE ...] [--states search|skip]
     adlin analyze MODEL.py [--model NAME] [--set NAME=VALUE ...] [--guess NAME=VALUE ...]
-                           [--input NAME --output NAME] [--plots DIR] [--json]
+                           [--input NAME --output NAME] [--states search|skip]
+                           [--plots DIR] [--json]
+    adlin track MODEL.py --param NAME --from A --to B [--show NAME] [--plots DIR] [--json]
 
 Errors caused by the model or the command line (every `adlin.AdlinError`, a
 missing model file, a malformed ``NAME=VALUE``) print one sentence to
@@ -123,6 +125,8 @@ def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out
     summary = report.summarize(
         system, op, model, devices=devices, input=args.input, output=args.output, notes=notes
     )
+    if args.states == "search":
+        summary.states = search_states(system, inputs, params, op)
     figures: list[Path] = []
     if args.plots:
         from ..report.figures import write_figures
@@ -151,6 +155,16 @@ def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out
         if figures:
             console.print("Figures: " + ", ".join(str(p) for p in figures))
     return 0
+
+
+def search_states(system, inputs, params, op):
+    """The other steady states at these values (source ramp + deflation from `op`)."""
+    from .._equilibria.find import steady_states
+    from ..report.states import summarize_states
+
+    states = steady_states(system, inputs, params, guesses=(op,),
+                           ramp=bool(system.inputs))
+    return summarize_states(system, states, op)
 
 
 def cmd_demo(args, out=None) -> int:
@@ -228,6 +242,11 @@ def build_parser() -> argparse.ArgumentParser:
         "zeros, DC gains, normalized model and loop gain of "
         "the built-in sensor-node LDO (Li-ion cell to 1.8 V).",
     )
+    demo.add_argument(
+        "--states", choices=("search", "skip"), default="skip",
+        help="search for other steady states (source ramp and deflation); default skip: the "
+        "regulator has one by design",
+    )
     demo.set_defaults(func=cmd_demo, guess=None)
     analyze = sub.add_parser(
         "analyze",
@@ -246,6 +265,11 @@ def build_parser() -> argparse.ArgumentParser:
         action="append",
         metavar="NAME=VALUE",
         help="starting value of an unknown for the bias-point solve (repeatable)",
+    )
+    analyze.add_argument(
+        "--states", choices=("search", "skip"), default="search",
+        help="search for other steady states and report which one is used (default search; "
+        "skip saves the extra compile time)",
     )
     analyze.set_defaults(func=cmd_analyze)
     add_track_command(sub, base)

@@ -226,6 +226,22 @@ def _normalized(summary: Summary) -> list:
     return out
 
 
+def _states(summary: Summary) -> list:
+    s = summary.states
+    if s is None:
+        return []
+    if not s.several:
+        return [Text(s.message(), style=DIM)]
+    table = _table("", ("#", "right"), ("class", "left"), ("found by", "left"),
+                   *((name, "right") for name, _ in s.columns), ("max Re(pole)", "right"))
+    for r in s.rows:
+        rate = "" if r.growth_rate is None else value_text(r.growth_rate, "rad/s")
+        mark = Text(f"{r.index} ◀ used", style="bold") if r.used else str(r.index)
+        table.add_row(mark, Text(r.label, style="bold" if r.stable else ACCENT), r.found_by,
+                      *(value_text(r.values[name], unit) for name, unit in s.columns), rate)
+    return [_heading("Steady states at these values"), Text(s.message(), style=ACCENT), table]
+
+
 def _notes(summary: Summary) -> list:
     if not summary.notes:
         return []
@@ -240,6 +256,7 @@ def renderables(summary: Summary) -> Group:
         ),
     ]
     parts += _bias(summary)
+    parts += _states(summary)
     parts += _devices(summary)
     parts += _roots("Poles", summary.poles, "pole")
     for (o, i), roots in summary.zeros.items():
