@@ -25,8 +25,10 @@ UNSTABLE_NODE = "unstable node"
 UNSTABLE_FOCUS = "unstable focus"
 MARGINAL = "marginal"
 STATIC = "static"  # no storage: E = 0, no poles, stability is not defined
+UNCLASSIFIED = "unclassified"  # no small-signal model there (see SteadyStates.notes)
 
-LABELS = (STABLE_NODE, STABLE_FOCUS, SADDLE, UNSTABLE_NODE, UNSTABLE_FOCUS, MARGINAL, STATIC)
+LABELS = (STABLE_NODE, STABLE_FOCUS, SADDLE, UNSTABLE_NODE, UNSTABLE_FOCUS, MARGINAL, STATIC,
+          UNCLASSIFIED)
 STABLE_LABELS = (STABLE_NODE, STABLE_FOCUS)
 
 # Eigenvalues computed in float64 carry an absolute error of roughly

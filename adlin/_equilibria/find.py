@@ -6,14 +6,15 @@ import dataclasses
 from collections.abc import Mapping, Sequence
 from typing import Any
 
+import jax.numpy as jnp
 import numpy as np
 
 from .._checks import check_finite
-from .._errors import AnalysisError, ModelError, SteadyStateError
+from .._errors import AdlinError, AnalysisError, ModelError, SteadyStateError
 from .._steady.operating_point import OperatingPoint
 from .._steady.solve import _is_traced, diagnose, guess_vector
 from .._system import System
-from .classify import classify_poles
+from .classify import UNCLASSIFIED, classify_poles
 from .deflation import deflated_solver, unknown_scales
 from .options import SteadyStatesOptions
 from .result import SteadyStates
@@ -253,14 +254,26 @@ def steady_states(
 
     order = _sorted(search)
     states = tuple(search.states[i] for i in order)
-    poles = tuple(compiled.linearize(op.x, u, p).poles() for op in states)
-    labels = tuple(classify_poles(np.asarray(pl), options.marginal_tol) for pl in poles)
+    poles, labels, notes = [], [], []
+    for i, op in enumerate(states):
+        try:
+            pl = compiled.linearize(op.x, u, p).poles()
+        except AdlinError as err:
+            # one state where the small-signal model does not exist (index > 1
+            # there) must not hide the others: say so and keep going
+            poles.append(jnp.zeros((0,), jnp.complex128))
+            labels.append(UNCLASSIFIED)
+            notes.append(f"state {i} not classified: {err}")
+            continue
+        poles.append(pl)
+        labels.append(classify_poles(np.asarray(pl), options.marginal_tol))
     return SteadyStates(
         states=states,
-        poles=poles,
-        labels=labels,
+        poles=tuple(poles),
+        labels=tuple(labels),
         found_by=tuple(search.found_by[i] for i in order),
         evaluations=search.evaluations,
         marginal_tol=options.marginal_tol,
         ramp_note=ramp_note,
+        notes=tuple(notes),
     )

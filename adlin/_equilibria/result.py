@@ -23,7 +23,9 @@ class SteadyStates(eqx.Module):
       (rad/s, complex, sorted by magnitude).
     - `labels`: the class of each state: ``"stable node"``, ``"stable
       focus"``, ``"saddle"``, ``"unstable node"``, ``"unstable focus"``,
-      ``"marginal"`` or ``"static"`` (see `adlin._equilibria.classify`).
+      ``"marginal"``, ``"static"`` (no storage, no poles) or
+      ``"unclassified"`` (no small-signal model there; see `notes`), see
+      `adlin._equilibria.classify`.
     - `found_by`: how each state was found first: ``"source ramp"``,
       ``"newton from guess k"`` (plain Newton; k indexes the guesses tried,
       the user's first, then the all-zero guess), ``"deflation from guess
@@ -35,6 +37,7 @@ class SteadyStates(eqx.Module):
     - `marginal_tol`: the tolerance the labels were made with.
     - `ramp_note`: how the source ramp ended ("reached the stop value", or
       why it stopped or was not run).
+    - `notes`: remarks on single states (why one could not be classified).
 
     `len()`, iteration (over the operating points) and integer indexing work;
     `stable` is the subset of asymptotically stable states; `table()` gives
@@ -48,6 +51,7 @@ class SteadyStates(eqx.Module):
     evaluations: int = eqx.field(static=True)
     marginal_tol: float = eqx.field(static=True, default=1e-6)
     ramp_note: str = eqx.field(static=True, default="not run")
+    notes: tuple[str, ...] = eqx.field(static=True, default=())
 
     def __len__(self) -> int:
         return len(self.states)
@@ -86,6 +90,7 @@ class SteadyStates(eqx.Module):
             evaluations=self.evaluations,
             marginal_tol=self.marginal_tol,
             ramp_note=self.ramp_note,
+            notes=self.notes,
         )
 
     def table(self) -> list[dict]:
