@@ -34,18 +34,18 @@ class ConductanceStepping(AbstractStrategy):
     - `start_conductance`: g at the start, in siemens.
     - `end_conductance`: g where the geometric schedule ends, in siemens.
     - `first_step`, `min_step`, `max_step`: steps in t (t runs from 0 to 1;
-      0.1 is one decade of g for the default range).
+      0.11 is one decade of g for the default range).
     - `max_steps`: continuation steps before giving up.
     - `corrector_iterations`: Newton iterations allowed per point.
     """
 
-    start_conductance: float = eqx.field(static=True, default=1e-2)
+    start_conductance: float = eqx.field(static=True, default=1e-3)
     end_conductance: float = eqx.field(static=True, default=1e-12)
     first_step: float = eqx.field(static=True, default=0.1)
     min_step: float = eqx.field(static=True, default=1e-4)
     max_step: float = eqx.field(static=True, default=0.5)
     max_steps: int = eqx.field(static=True, default=200)
-    corrector_iterations: int = eqx.field(static=True, default=40)
+    corrector_iterations: int = eqx.field(static=True, default=100)
 
     name: ClassVar[str] = "conductance"
     code: ClassVar[int] = CONDUCTANCE

@@ -37,7 +37,7 @@ class PseudoTransient(AbstractStrategy):
     of our own: delta grows at least by `min_growth` per accepted step (SER
     alone stalls while the residual stays flat, e.g. while a node charges
     towards a far-away supply), and a step that makes the model non-finite or
-    raises the residual more than tenfold is rejected with delta divided by 4.
+    raises the residual more than a hundredfold is rejected with delta divided by 4.
 
     Choice of V (`scaling`):
 
@@ -109,11 +109,7 @@ class PseudoTransient(AbstractStrategy):
             v = jnp.where(v > 0, v, jnp.max(d))
             return jnp.diag(jnp.where(v > 0, v, 1.0))
 
-        # Fixed row weights for the residual norm that drives SER (unit-free).
-        J0, f0 = value_and_jac(x0)
-        _, _, row0 = _tolerances(J0, x0, opts)
-        scale0 = jnp.maximum(row0, jnp.abs(f0))
-        w = 1.0 / jnp.where((scale0 > 0) & jnp.isfinite(scale0), scale0, 1.0)
+        J0, _ = value_and_jac(x0)
         if storage:
             E0 = jax.jacfwd(problem.q)(x0, problem.p)
             tau = jnp.linalg.norm(E0) / jnp.maximum(jnp.linalg.norm(J0), 1e-300)
@@ -122,7 +118,9 @@ class PseudoTransient(AbstractStrategy):
             delta0 = jnp.asarray(self.initial_step, dtype)
 
         def norm(f):
-            return jnp.sqrt(jnp.sum((w * f) ** 2))
+            # the plain 2-norm of the paper; row weights taken at a start point
+            # where devices are off made one equation's tiny currents dominate
+            return jnp.sqrt(jnp.sum(f**2))
 
         def cond(s):
             return active & (s["reason"] < 0) & (s["k"] < self.max_steps)
@@ -134,7 +132,7 @@ class PseudoTransient(AbstractStrategy):
             fn = norm(f)
             # Reject a step that broke the model or blew up the residual: go back to
             # the last accepted point (re-evaluated next time) with a smaller delta.
-            reject = (~finite | (fn > 10.0 * s["fnorm"])) & (s["k"] > 0)
+            reject = (~finite | (fn > 100.0 * s["fnorm"])) & (s["k"] > 0)
             f_tol, x_tol, _ = _tolerances(J, x, opts)
             dx_newton = jnp.linalg.solve(J, -f)
             converged = (finite & jnp.all(jnp.isfinite(dx_newton))

@@ -99,4 +99,4 @@ class SourceStepping(AbstractStrategy):
             problem, F, x0, first_step=self.first_step, min_step=self.min_step,
             max_step=self.max_step, max_steps=self.max_steps,
             corrector_iterations=self.corrector_iterations, active=active)
-        return single_attempt(SOURCE, x, reason, evals, steps, s, active=active)
+        return single_attempt(SOURCE, x, reason, evals, steps, jnp.maximum(s, 0.0), active=active)

@@ -1,0 +1,221 @@
+"""Steady-state strategies: each on a case plain Newton cannot solve, checked
+against outside references; path-independent gradients; batches; messages."""
+
+from __future__ import annotations
+
+import functools
+import math
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+import pytest
+import scipy.optimize
+import sympy
+from closed_forms import VT, diode_resistor, diode_resistor_exact
+
+import adlin
+from adlin.strategies import (
+    Auto,
+    ConductanceStepping,
+    Newton,
+    NewtonHomotopy,
+    PseudoTransient,
+    SourceStepping,
+)
+
+
+# --- reference circuits --------------------------------------------------------------
+def _tunnel_current(v, Ip, Vp, Is):
+    # Tunnel current Ip (v/Vp) exp(1 - v/Vp), peaking at Ip when v = Vp (a common empirical
+    # form, quoted from memory), plus the Shockley diffusion current (Sedra & Smith,
+    # Microelectronic Circuits, 7th ed., sec. 4.2).
+    return Ip * (v / Vp) * np.exp(1 - v / Vp) + Is * (np.exp(v / VT) - 1)
+
+
+@functools.cache
+def tunnel_diode() -> adlin.System:
+    """Source - R - tunnel diode to ground.  With R = 100 ohm and 1.5 V the load line
+    meets the diode's characteristic once, on the diffusion branch near 0.7 V; from
+    0 V plain Newton stalls at the current peak, where |f| has a local minimum."""
+
+    def current(x, u, p):
+        v = x[0]
+        i_t = p["Ip"] * (v / p["Vp"]) * jnp.exp(1 - v / p["Vp"])
+        return jnp.stack([(v - u[0]) / p["R"] + i_t + p["Is"] * (jnp.exp(v / VT) - 1)])
+
+    return adlin.System(current, unknowns=("v_d",), inputs={"v_s": 1.5},
+                        params={"R": 100.0, "Ip": 0.01, "Vp": 0.1, "Is": 1e-14},
+                        junctions=[adlin.Junction("v_d", None)], name="tunnel_diode")
+
+
+def tunnel_reference(V=1.5, R=100.0, Ip=0.01, Vp=0.1, Is=1e-14) -> float:
+    """The one root of (v - V)/R + i(v), by scipy's brentq on a bracket with one sign change."""
+    f = lambda v: (v - V) / R + _tunnel_current(v, Ip, Vp, Is)
+    grid = np.linspace(0.0, V, 20001)
+    changes = np.flatnonzero(np.diff(np.sign(f(grid))))
+    assert changes.size == 1  # one crossing of the load line: the answer is unique
+    k = int(changes[0])
+    return scipy.optimize.brentq(f, grid[k], grid[k + 1], xtol=1e-15, rtol=1e-15)
+
+
+@functools.cache
+def cubic_conductor() -> adlin.System:
+    """Current source i_in into a node with a cubic conductor i = k v^3 to ground.
+    At v = 0 the Jacobian 3 k v^2 vanishes, so Newton from zero cannot take a step."""
+    return adlin.System(lambda x, u, p: jnp.stack([p["k"] * x[0] ** 3 - u[0]]),
+                        unknowns=("v_n",), inputs={"i_in": 8e-3}, params={"k": 1e-3},
+                        name="cubic_conductor")
+
+
+def cubic_reference(i_in=8e-3, k=1e-3) -> float:
+    # the one real root of k v^3 = i_in, from sympy
+    v = sympy.Symbol("v", real=True)
+    (root,) = sympy.solve(sympy.Float(k, 30) * v**3 - sympy.Float(i_in, 30), v)
+    return float(root)
+
+
+@functools.cache
+def no_solution() -> adlin.System:
+    # x^2 + c = 0 has no real root for c > 0
+    return adlin.System(lambda x, u, p: jnp.stack([x[0] ** 2 + p["c"] + 0.0 * x[0]]),
+                        unknowns=("x",), params={"c": 1.0}, name="no_real_root")
+
+
+# --- every strategy agrees with the published closed form ----------------------------
+ALL = ["newton", "conductance", "source", "pseudo-transient", "homotopy"]
+
+
+@pytest.mark.parametrize("strategy", ALL)
+def test_each_strategy_matches_lambert_w(strategy):
+    """Diode and resistor at 50 V: Lambert W closed form (Banwell & Jayakumar,
+    Electronics Letters 36(4), 2000)."""
+    op = adlin.steady_state(diode_resistor(1.0), inputs={"v_s": 50.0}, strategy=strategy)
+    assert op.method == strategy
+    assert float(op["v_a"]) == pytest.approx(diode_resistor_exact(50.0, 1e3, 1e-14), rel=1e-12)
+    assert op.attempts.tolist() == [0 if k == strategy else -1 for k in ALL]
+    assert int(op.evaluations) >= int(op.attempt_evaluations.sum())
+
+
+# --- cases plain Newton cannot solve --------------------------------------------------
+def test_plain_newton_fails_on_the_reference_cases():
+    op = adlin.steady_state(tunnel_diode(), strategy="newton", throw=False)
+    assert not bool(op.converged) and int(op.status) == 1  # stalls at the peak
+    op = adlin.steady_state(cubic_conductor(), strategy="newton", throw=False)
+    assert not bool(op.converged) and int(op.status) == 2  # singular at zero
+
+
+@pytest.mark.parametrize("strategy", [PseudoTransient(), NewtonHomotopy(),
+                                      SourceStepping(sources=("Ip",))],
+                         ids=["pseudo-transient", "homotopy", "source(Ip)"])
+def test_tunnel_diode_past_the_peak(strategy):
+    op = adlin.steady_state(tunnel_diode(), strategy=strategy)
+    assert float(op["v_d"]) == pytest.approx(tunnel_reference(), rel=1e-12)
+    assert op.method == strategy.name
+
+
+def test_source_stepping_stops_at_the_fold_and_says_where():
+    """Ramping v_s walks the first branch up to the current peak, where that branch
+    ends (a fold): the step underflows there, near v_s = Vp + R Ip = 1.1 V, i.e.
+    source scale 1.1 / 1.5 = 0.73 (load line tangent at the peak, hand derivation)."""
+    op = adlin.steady_state(tunnel_diode(), strategy="source", throw=False)
+    assert not bool(op.converged)
+    assert op.attempts[2] == 4
+    scale = float(op.attempt_progress[2])
+    assert 0.6 < scale < 0.75
+    assert "step size underflow at source scale 0.7" in op.attempts_message
+
+
+@pytest.mark.parametrize("strategy", [ConductanceStepping(), PseudoTransient(), NewtonHomotopy()],
+                         ids=["conductance", "pseudo-transient", "homotopy"])
+def test_cubic_conductor_from_a_singular_start(strategy):
+    op = adlin.steady_state(cubic_conductor(), strategy=strategy)
+    assert float(op["v_n"]) == pytest.approx(cubic_reference(), rel=1e-13)
+
+
+def test_auto_escalates_and_records_what_it_tried():
+    op = adlin.steady_state(tunnel_diode())
+    assert float(op["v_d"]) == pytest.approx(tunnel_reference(), rel=1e-12)
+    assert op.method == "pseudo-transient"
+    assert op.attempts.tolist()[:4] == [1, 5, 4, 0] and int(op.attempts[4]) == -1
+    names = [name for name, _, _ in op.history]
+    assert names == ["newton", "conductance", "source", "pseudo-transient"]
+    assert int(op.evaluations) > int(op.attempt_evaluations.sum()) - 1
+    assert "newton: no convergence after 200 iterations" in op.attempts_message
+
+
+# --- derivatives do not depend on the path ------------------------------------------
+def _dv_dR_closed_form(v, V=1.5, R=100.0, Ip=0.01, Vp=0.1, Is=1e-14):
+    # implicit differentiation of (v - V)/R + i(v) = 0:  dv/dR = ((v - V)/R^2) / (1/R + i'(v))
+    di = Ip / Vp * (1 - v / Vp) * math.exp(1 - v / Vp) + Is / VT * math.exp(v / VT)
+    return ((v - V) / R**2) / (1 / R + di)
+
+
+@pytest.mark.parametrize("strategy", ["pseudo-transient", "homotopy", SourceStepping(("Ip",))],
+                         ids=["pseudo-transient", "homotopy", "source(Ip)"])
+def test_gradient_is_path_independent(strategy):
+    system = tunnel_diode()
+
+    def v_of(R, strategy, guess=None):
+        return adlin.steady_state(system, params={"R": R}, guess=guess, strategy=strategy).x[0]
+
+    g = float(jax.grad(v_of)(100.0, strategy))
+    g_newton = float(jax.grad(v_of)(100.0, "newton", {"v_d": 0.7}))  # good guess
+    h = 1e-4
+    fd = (tunnel_reference(R=100.0 + h) - tunnel_reference(R=100.0 - h)) / (2 * h)
+    assert g == pytest.approx(g_newton, rel=1e-12)
+    assert g == pytest.approx(_dv_dR_closed_form(tunnel_reference()), rel=1e-9)
+    assert g == pytest.approx(fd, rel=1e-6)
+
+
+# --- batches ----------------------------------------------------------------------
+@pytest.mark.slow  # two batched programs (~13 s on 2 shared cores)
+def test_vmap_reports_per_lane_status_and_strategy():
+    system = tunnel_diode()
+    V = jnp.array([0.2, 1.5, 3.0])
+    ops = jax.vmap(lambda v: adlin.steady_state(system, inputs={"v_s": v},
+                                                strategy="homotopy", throw=False))(V)
+    assert ops.converged.tolist() == [True, True, True]
+    ref = [tunnel_reference(V=float(v)) if float(v) > 1.1 else None for v in V]
+    np.testing.assert_allclose(np.asarray(ops.x[1:, 0]), ref[1:], rtol=1e-12)
+    assert ops.method == "homotopy"
+    bad = jax.vmap(lambda c: adlin.steady_state(no_solution(), params={"c": c}, guess={"x": 1.0},
+                                                strategy=PseudoTransient(), throw=False))(
+        jnp.array([-4.0, 1.0]))
+    assert bad.converged.tolist() == [True, False]
+    assert float(bad.x[0, 0]) == pytest.approx(2.0, rel=1e-12)
+    assert np.all(np.isfinite(np.asarray(bad.x)))
+    assert bad.attempts[:, 3].tolist()[0] == 0 and bad.attempts[1, 3] > 0
+
+
+# --- configuration and messages ----------------------------------------------------
+def test_strategy_names_and_instances_resolve():
+    cs = adlin.compile(diode_resistor(1.0))
+    assert cs.solve_with(Newton()) is cs.solve
+    assert cs.solve_with(PseudoTransient()) is cs.solve_with(PseudoTransient())
+    with pytest.raises(adlin.ParameterError, match=r"unknown steady-state strategy 'homotopie'"
+                                                   r".*'homotopy'"):
+        adlin.steady_state(diode_resistor(1.0), strategy="homotopie")
+    with pytest.raises(adlin.ParameterError, match=r"source 'Ipp'.*'Ip'"):
+        adlin.steady_state(tunnel_diode(), strategy=SourceStepping(sources=("Ipp",)))
+    with pytest.raises(adlin.ParameterError, match="start_conductance must be positive"):
+        ConductanceStepping(start_conductance=-1.0)
+    with pytest.raises(adlin.ParameterError, match="scaling must be one of"):
+        PseudoTransient(scaling="identity")
+    with pytest.raises(adlin.ParameterError, match="cannot be nested"):
+        Auto(order=("newton", Auto()))
+
+
+@pytest.mark.slow  # compiles every strategy for a new model (~13 s on 2 shared cores)
+def test_auto_failure_says_what_it_tried():
+    with pytest.raises(adlin.SteadyStateError,
+                       match=r"not found after \d+ residual evaluations \(tried newton: .*; "
+                             r"conductance: .*; source: .*; pseudo-transient: .*; homotopy: .*"
+                             r"'x' equation off by"):
+        adlin.steady_state(no_solution(), guess={"x": 1.0})
+
+
+def test_single_strategy_failure_suggests_auto():
+    with pytest.raises(adlin.SteadyStateError, match=r"tried source: step size underflow.*"
+                                                     r"try strategy='auto'"):
+        adlin.steady_state(tunnel_diode(), strategy="source")
