@@ -384,3 +384,44 @@ def test_guesses_by_name_are_used():
     res = adlin.steady_states(cubic(), guesses=[{"x": 0.9}], max_states=1, ramp=False)
     assert float(res[0]["x"]) == pytest.approx(1.0, rel=1e-12)  # Newton's nearest root
     assert res.found_by == ("newton from guess 0",)
+
+
+@functools.cache
+def index_two_at_one_state() -> adlin.System:
+    """x' = z - x, 0 = (z - 1)^2 + x - 1: states (0, 0) and (1, 1).  The algebraic
+    equation's derivative in z, 2 (z - 1), vanishes at (1, 1), so the model has
+    differential index 2 there and index 1 elsewhere (Brenan, Campbell & Petzold,
+    Numerical Solution of Initial-Value Problems in DAEs, SIAM 1996, sec. 1.2)."""
+
+    def current(x, u, p):
+        return jnp.stack([x[0] - x[1], (x[1] - 1.0) ** 2 + x[0] - 1.0])
+
+    def charge(x, p):
+        return jnp.stack([x[0], 0.0 * x[1]])
+
+    return adlin.System(current, charge, unknowns=("x", "z"), name="index_two_at_one_state")
+
+
+def test_state_without_small_signal_model_is_unclassified():
+    """At (0, 0): dz/dx = -1 / (2 (z - 1)) = 1/2 (implicit function theorem), so the
+    reduced model is x' = (1/2 - 1) x: one pole at -0.5, a stable node.  At (1, 1) no
+    index-1 model exists: the state is kept, labelled, and the note says why."""
+    res = adlin.steady_states(index_two_at_one_state())
+    np.testing.assert_allclose(res.x, [[0.0, 0.0], [1.0, 1.0]], atol=1e-9)
+    assert res.labels == ("stable node", "unclassified")
+    np.testing.assert_allclose(np.asarray(res.poles[0]), [-0.5], rtol=1e-12)
+    assert len(res.notes) == 1 and "state 1" in res.notes[0] and "index" in res.notes[0]
+    assert res.table()[1]["growth_rate_rad_s"] is None
+
+
+def test_each_state_is_differentiable_through_steady_state():
+    """Re-solving from a found state under jax.grad gives the implicit derivative
+    dx*/dr = -1 / (1 - 3 x*^2) of r + x - x^3 = 0 (implicit function theorem)."""
+    system = cubic()
+    res = adlin.steady_states(system, params={"r": 0.1})
+    for state in res:
+        def x_of(r, state=state):
+            return adlin.steady_state(system, params={"r": r}, guess=state).x[0]
+
+        x = float(state["x"])
+        assert float(jax.grad(x_of)(0.1)) == pytest.approx(-1.0 / (1.0 - 3.0 * x**2), rel=1e-9)

@@ -215,13 +215,20 @@ def steady_states(
     if ramp and system.inputs:
         from .ramp import ramp_candidates
 
-        walked = ramp_candidates(compiled, u, p, zero, options)
-        search.evaluations += walked.evaluations
-        ramp_note = walked.reason
-        for x in walked.candidates:
-            if search.full:
-                break
-            search.polish(x, "source ramp")
+        try:
+            walked = ramp_candidates(compiled, u, p, zero, options)
+        except AdlinError as err:
+            # the ramp is one way in among several: a model that cannot be
+            # followed (not finite with the sources low, say) leaves deflation
+            walked = None
+            ramp_note = f"the source ramp failed: {err}"
+        if walked is not None:
+            search.evaluations += walked.evaluations
+            ramp_note = walked.reason
+            for x in walked.candidates:
+                if search.full:
+                    break
+                search.polish(x, "source ramp")
     elif ramp:
         ramp_note = "the model has no inputs to ramp"
     for k, x0 in enumerate(starts):
