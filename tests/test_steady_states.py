@@ -265,7 +265,7 @@ def test_classes_match_the_trace_determinant_plane(m):
 
 
 def test_classes_in_three_dimensions():
-    """Kuznetsov, Elements of Applied Bifurcation Theory, 3rd ed., 2004, sec. 2.1: the
+    """Kuznetsov, Elements of Applied Bifurcation Theory, 3rd ed., 2004, ch. 2 (from memory): the
     counts (n-, n0, n+) decide; n- n+ != 0 is a saddle (also with a complex pair),
     n0 > 0 is not hyperbolic."""
     assert classify_poles([-1.0, -2.0 + 3.0j, -2.0 - 3.0j]) == "stable focus"
@@ -309,10 +309,10 @@ def test_van_der_pol_origin_is_unstable(mu, label):
 # --- deflation operator -----------------------------------------------------------------------
 def test_deflated_newton_step_is_a_scaled_newton_step():
     """For G = M f, dG/dx = M J + f grad(M)^T, and Sherman-Morrison (Golub & Van Loan,
-    Matrix Computations, 4th ed., sec. 2.1.4) gives the Newton step of G as the Newton
-    step dx of f times 1 / (1 - grad(ln M) . dx), as Farrell, Birkisson & Funke (SIAM
-    J. Sci. Comput. 2015) note.  M tends to 1 far from the roots (shift 1) and is large
-    near one."""
+    Matrix Computations, 4th ed., sec. 2.1.4, from memory) gives the Newton step of G as
+    the Newton step dx of f times 1 / (1 - grad(ln M) . dx).  The shifted operator of
+    Farrell, Birkisson & Funke (SIAM J. Sci. Comput. 2015) tends to 1 far from the roots
+    (shift 1) and is large near one."""
     system = tunnel_diode()
     u, p = system.input_vector(), system.param_vector()
     roots = jnp.array([[0.1, 0.7], [0.9, 0.2], [0.0, 0.0]])
@@ -391,7 +391,8 @@ def index_two_at_one_state() -> adlin.System:
     """x' = z - x, 0 = (z - 1)^2 + x - 1: states (0, 0) and (1, 1).  The algebraic
     equation's derivative in z, 2 (z - 1), vanishes at (1, 1), so the model has
     differential index 2 there and index 1 elsewhere (Brenan, Campbell & Petzold,
-    Numerical Solution of Initial-Value Problems in DAEs, SIAM 1996, sec. 1.2)."""
+    Numerical Solution of Initial-Value Problems in DAEs, SIAM 1996, ch. 2, on the index
+    of semi-explicit systems; from memory)."""
 
     def current(x, u, p):
         return jnp.stack([x[0] - x[1], (x[1] - 1.0) ** 2 + x[0] - 1.0])

@@ -8,8 +8,9 @@ mixed signs a saddle (Strogatz, Nonlinear Dynamics and Chaos, 2nd ed., 2015,
 sec. 5.2).  In n dimensions the same words follow the counts n-, n0, n+ of
 poles with negative, zero and positive real part: n0 = 0 is hyperbolic, and
 n- > 0 with n+ > 0 is a saddle (Kuznetsov, Elements of Applied Bifurcation
-Theory, 3rd ed., 2004, sec. 2.1, where a saddle with complex poles is also
-called a saddle-focus; we keep the single word "saddle").  A pole whose real
+Theory, 3rd ed., 2004, ch. 2, where a saddle with complex poles is also
+called a saddle-focus; we keep the single word "saddle"; section quoted from
+memory).  A pole whose real
 part is zero to within the tolerance makes the state "marginal": the linear
 model alone does not decide its stability.
 """
@@ -32,8 +33,8 @@ LABELS = (STABLE_NODE, STABLE_FOCUS, SADDLE, UNSTABLE_NODE, UNSTABLE_FOCUS, MARG
 STABLE_LABELS = (STABLE_NODE, STABLE_FOCUS)
 
 # Eigenvalues computed in float64 carry an absolute error of roughly
-# eps * ||A|| (Golub & Van Loan, Matrix Computations, 4th ed., 2013, sec. 7.1,
-# Bauer-Fike; more for non-normal A), so a real part below this fraction of
+# eps * ||A|| (Golub & Van Loan, Matrix Computations, 4th ed., 2013, sec. 7.2,
+# Bauer-Fike theorem, from memory; more for non-normal A), so a real part below this fraction of
 # the largest pole is indistinguishable from zero whatever the tolerance.
 ROUNDOFF_FRACTION = 1e-12
 

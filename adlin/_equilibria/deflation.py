@@ -22,7 +22,7 @@ differences would be invisible next to the voltages'.
 
 The deflated Newton step is the Newton step of f scaled by
 1 / (1 - grad(ln M) . dx) (Sherman-Morrison on the rank-one term of dG/dx;
-same paper, sec. 3), so the solver's junction limiting and line search act
+checked in the tests), so the solver's junction limiting and line search act
 as they do on f; we reuse `adlin._steady.newton.newton_solve` on G.
 
 The known roots live in a padded array of fixed capacity with a mask, so the
