@@ -426,3 +426,40 @@ def test_each_state_is_differentiable_through_steady_state():
 
         x = float(state["x"])
         assert float(jax.grad(x_of)(0.1)) == pytest.approx(-1.0 / (1.0 - 3.0 * x**2), rel=1e-9)
+
+
+@functools.cache
+def bjt_flip_flop() -> adlin.System:
+    """Two NPN stages, each collector driving the other's base through 10 kOhm."""
+    c = adlin.Circuit("flip_flop")
+    c.input("v_cc", 5.0, unit="V")
+    c.voltage_source("VCC", "vcc", "gnd", "v_cc")
+    for a, b, k in (("c1", "c2", "1"), ("c2", "c1", "2")):
+        c.resistor("RC" + k, "vcc", a, 1e3)
+        c.resistor("RB" + k, b, "b" + k, 10e3)
+        c.bjt("Q" + k, c=a, b="b" + k, e="gnd")
+        c.capacitor("CC" + k, a, "gnd", 1e-12)
+        c.capacitor("CB" + k, "b" + k, "gnd", 1e-12)
+    return c.build()
+
+
+@pytest.mark.slow
+def test_bjt_flip_flop_is_bistable():
+    """A collector-coupled bistable multivibrator has two stable states, one transistor
+    saturated and the other cut off, mirror images, and a symmetric unstable state
+    between them (Sedra & Smith, Microelectronic Circuits, 7th ed., 2015, chapter on
+    bistable circuits; from memory).  With Q2 cut off, its collector feeds Q1's base
+    alone: v_c2 = (V_CC R_B + v_b1 R_C) / (R_C + R_B) (Ohm's law and KCL at c2), and
+    no current flows in Q2's base resistor: v_b2 = v_c1."""
+    res = adlin.steady_states(bjt_flip_flop())
+    assert len(res) == 3
+    middle = res.labels[1]
+    assert middle == "saddle" and res.stable.labels == (res.labels[0], res.labels[2])
+    assert float(res[1]["v_c1"]) == pytest.approx(float(res[1]["v_c2"]), rel=1e-9)
+    one, two = (op for op in res.stable)
+    assert float(one["v_c1"]) == pytest.approx(float(two["v_c2"]), rel=1e-9)
+    q1_on = one if float(one["v_c1"]) < float(one["v_c2"]) else two
+    v_b1 = float(q1_on["v_b1"])
+    assert float(q1_on["v_c2"]) == pytest.approx((5.0 * 10e3 + v_b1 * 1e3) / 11e3, rel=1e-9)
+    assert float(q1_on["v_b2"]) == pytest.approx(float(q1_on["v_c1"]), abs=1e-9)
+    assert float(q1_on["v_c1"]) < 0.2  # saturated: V_CE(sat) of a few tenths at most
