@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 import scipy.optimize
 import sympy
-from closed_forms import VT, diode_resistor, diode_resistor_exact
+from closed_forms import VT, diode_resistor, diode_resistor_exact, van_der_pol
 
 import adlin
 from adlin.strategies import (
@@ -219,3 +219,43 @@ def test_single_strategy_failure_suggests_auto():
     with pytest.raises(adlin.SteadyStateError, match=r"tried source: step size underflow.*"
                                                      r"try strategy='auto'"):
         adlin.steady_state(tunnel_diode(), strategy="source")
+
+
+# --- prefer a stable state -----------------------------------------------------------
+@functools.cache
+def latch() -> adlin.System:
+    """Two cross-coupled gain stages: v1' = -v1 + a tanh(v2), v2' = -v2 + a tanh(v1)."""
+
+    def h(x, u, p):
+        return jnp.stack([-x[0] + p["a"] * jnp.tanh(x[1]), -x[1] + p["a"] * jnp.tanh(x[0])])
+
+    return adlin.System.from_ode(h, states=("v_1", "v_2"), params={"a": 2.0}, name="latch")
+
+
+def test_prefer_stable_leaves_the_saddle_of_a_latch():
+    """With a = 2 the origin is a saddle: the Jacobian there is [[-1, a], [a, -1]], with
+    eigenvalues -1 +- a = 1, -3 (hand linearization).  The stable states are
+    +-(s, s) with s = a tanh(s) (root by scipy's brentq), where the eigenvalues
+    -1 +- a sech^2(s) are both negative."""
+    op = adlin.steady_state(latch())
+    np.testing.assert_allclose(np.asarray(op.x), [0.0, 0.0], atol=1e-14)
+    np.testing.assert_allclose(np.sort(adlin.linearize(latch(), op).poles().real), [-3.0, 1.0],
+                               rtol=1e-12)
+    stable = adlin.steady_state(latch(), strategy=Auto(prefer_stable=True))
+    s_ref = scipy.optimize.brentq(lambda s: s - 2.0 * np.tanh(s), 0.5, 3.0, xtol=1e-15)
+    np.testing.assert_allclose(np.abs(np.asarray(stable.x)), [s_ref, s_ref], rtol=1e-12)
+    assert stable.method == "pseudo-transient"
+    assert [name for name, _, _ in stable.history] == ["newton", "pseudo-transient"]
+    sech2 = 1.0 / math.cosh(s_ref) ** 2
+    np.testing.assert_allclose(np.sort(adlin.linearize(latch(), stable).poles().real),
+                               [-1 - 2 * sech2, -1 + 2 * sech2], rtol=1e-10)
+
+
+def test_prefer_stable_keeps_an_oscillator_bias():
+    """The Van der Pol origin is its only equilibrium and unstable for mu > 0 (Strogatz,
+    Nonlinear Dynamics and Chaos, 2nd ed., sec. 7.6): it must still be returned."""
+    op = adlin.steady_state(van_der_pol(0.5), guess={"x": 0.3, "y": -0.2},
+                            strategy=Auto(prefer_stable=True))
+    np.testing.assert_allclose(np.asarray(op.x), [0.0, 0.0], atol=1e-12)
+    assert op.method == "newton"
+    assert "reached only an unstable state" in op.attempts_message

@@ -75,21 +75,21 @@ class NewtonHomotopy(AbstractStrategy):
 
         value_and_jac = jax.jacfwd(value_twice, has_aux=True)
 
-        def H(z):
-            return problem.residual(z[:n]) - (1.0 - z[n]) * f0
-
         def bordered(J, row):
             top = jnp.concatenate([J, f0[:, None]], axis=1)
             return jnp.concatenate([top, row[None, :]], axis=0)
 
-        def tangent(z, t_old):
-            J, _ = value_and_jac(z[:n])
+        def tangent(J, t_old):
             t = jnp.linalg.solve(bordered(J, t_old), e_lam)
             t = t / jnp.linalg.norm(t)
             return jnp.where(jnp.dot(t, t_old) < 0, -t, t)
 
         def correct(z_start, row, target, enabled=True):
-            """Newton on [H(z); row . z - target] = 0; returns (z, converged, iterations, first)."""
+            """Newton on [H(z); row . z - target] = 0.
+
+            Returns (z, converged, iterations, size of the first update, df/dx at
+            the last iterate; it serves the next tangent, one model copy fewer).
+            """
 
             def c_cond(c):
                 return (~c["done"]) & (c["i"] < self.corrector_iterations)
@@ -99,36 +99,37 @@ class NewtonHomotopy(AbstractStrategy):
                 J, f = value_and_jac(z[:n])
                 r = jnp.concatenate([f - (1.0 - z[n]) * f0, (jnp.dot(row, z) - target)[None]])
                 dz = jnp.linalg.solve(bordered(J, row), -r)
-                ok = jnp.all(jnp.isfinite(dz))
+                ok = jnp.all(jnp.isfinite(dz)) & jnp.all(jnp.isfinite(r))
                 dz = jnp.where(ok, dz, 0.0)
                 size = jnp.max(jnp.abs(dz) / (self.corrector_rtol * jnp.abs(z) + atol))
                 return {"z": z + dz, "i": c["i"] + 1, "bad": c["bad"] | ~ok,
-                        "done": (size <= 1.0) | ~ok,
+                        "done": (size <= 1.0) | ~ok, "J": J,
                         "first": jnp.where(c["i"] == 0, jnp.linalg.norm(dz), c["first"])}
 
             c = jax.lax.while_loop(c_cond, c_body, {
                 "z": z_start, "i": jnp.asarray(0), "bad": jnp.asarray(False),
-                "done": ~jnp.asarray(enabled), "first": jnp.asarray(0.0, dtype)})
-            good = enabled & c["done"] & ~c["bad"] & jnp.all(jnp.isfinite(H(c["z"])))
-            return c["z"], good, c["i"], c["first"]
+                "done": ~jnp.asarray(enabled), "first": jnp.asarray(0.0, dtype),
+                "J": jnp.zeros((n, n), dtype)})
+            good = enabled & c["done"] & ~c["bad"]
+            return c["z"], good, c["i"], c["first"], c["J"]
 
         def cond(s):
             return active & (s["reason"] < 0) & (s["k"] < self.max_steps)
 
         def body(s):
             z, t_old, h = s["z"], s["t"], s["h"]
-            t = tangent(z, t_old)
+            t = tangent(s["J"], t_old)
             singular = ~jnp.all(jnp.isfinite(t))
             t = jnp.where(singular, t_old, t)
             # Predictor-corrector along the arclength.
             z_pred = z + h * t
-            z_new, good, iters, first = correct(z_pred, t, jnp.dot(t, z_pred))
+            z_new, good, iters, first, J_new = correct(z_pred, t, jnp.dot(t, z_pred))
             good = good & (first <= h)  # a large first correction: the step jumped paths
             crossed = good & (z_new[n] >= 1.0)
             # Landing on lam = 1 from the interpolated point.
             frac = (1.0 - z[n]) / jnp.where(crossed, z_new[n] - z[n], 1.0)
             z_mid = z + frac * (z_new - z)
-            z_land, landed, iters2, _ = correct(z_mid, e_lam, 1.0, crossed)
+            z_land, landed, iters2, _, _ = correct(z_mid, e_lam, 1.0, crossed)
             done = crossed & landed
             accept = good & ~crossed
             h_next = jnp.where(
@@ -141,10 +142,11 @@ class NewtonHomotopy(AbstractStrategy):
             return {
                 "z": jnp.where(done, z_land, jnp.where(accept, z_new, z)),
                 "t": t,
+                "J": jnp.where(accept, J_new, s["J"]),
                 "h": h_next,
                 "k": s["k"] + 1,
                 "reason": reason,
-                "evals": s["evals"] + (n + 1) * (1 + iters + jnp.where(crossed, iters2, 0)),
+                "evals": s["evals"] + (n + 1) * (iters + jnp.where(crossed, iters2, 0)),
             }
 
         # First tangent: the null vector of [J f0] at the start (an SVD, since J may
@@ -156,6 +158,7 @@ class NewtonHomotopy(AbstractStrategy):
         init = {
             "z": jnp.concatenate([x0, jnp.zeros((1,), dtype)]),
             "t": jnp.where(finite0, t0, e_lam),
+            "J": J0,
             "h": jnp.asarray(self.first_step, dtype),
             "k": jnp.asarray(0),
             "reason": jnp.where(finite0, -1, NON_FINITE),

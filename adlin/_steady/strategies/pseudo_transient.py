@@ -109,8 +109,8 @@ class PseudoTransient(AbstractStrategy):
             v = jnp.where(v > 0, v, jnp.max(d))
             return jnp.diag(jnp.where(v > 0, v, 1.0))
 
-        J0, _ = value_and_jac(x0)
         if storage:
+            J0, _ = value_and_jac(x0)
             E0 = jax.jacfwd(problem.q)(x0, problem.p)
             tau = jnp.linalg.norm(E0) / jnp.maximum(jnp.linalg.norm(J0), 1e-300)
             delta0 = self.initial_step * jnp.where(tau > 0, tau, 1.0)
