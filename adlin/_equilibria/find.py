@@ -6,13 +6,14 @@ import dataclasses
 from collections.abc import Mapping, Sequence
 from typing import Any
 
+import jax
 import jax.numpy as jnp
 import numpy as np
 
 from .._checks import check_finite
 from .._errors import AdlinError, AnalysisError, ModelError, SteadyStateError
 from .._steady.operating_point import OperatingPoint
-from .._steady.solve import _is_traced, diagnose, guess_vector
+from .._steady.solve import diagnose, guess_vector
 from .._system import System
 from .classify import UNCLASSIFIED, classify_poles
 from .deflation import deflated_solver, unknown_scales
@@ -64,6 +65,10 @@ class _Search:
         self.states.append(op)
         self.found_by.append(how)
         return "new"
+
+
+def _is_traced(*trees) -> bool:
+    return any(isinstance(leaf, jax.core.Tracer) for leaf in jax.tree_util.tree_leaves(trees))
 
 
 def _capacity(max_states: int) -> int:
