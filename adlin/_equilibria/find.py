@@ -144,15 +144,18 @@ def steady_states(
     """Several distinct steady states at one set of inputs and parameters, classified.
 
     States come from two sources.  The source ramp scales every input by s
-    from 0 to `options.ramp_stop` (default 2) and follows the branch of steady states by
-    pseudo-arclength continuation; every crossing of s = 1 is a state (an
-    S-shaped branch gives three).  Deflation (Farrell, Birkisson & Funke,
-    SIAM J. Sci. Comput. 2015) runs Newton on the residual multiplied by a
-    factor that is infinite at every state already known, from each guess
-    again and again until it fails.  Every candidate is polished with plain
-    Newton on the model itself, kept if it differs from the others (scaled
-    distance, `options.distinct_rtol`), and classified from the poles of its
-    small-signal model.
+    from 0 to `options.ramp_stop` (default 2) and follows the branch of
+    steady states by pseudo-arclength continuation; every crossing of s = 1
+    is a state (an S-shaped branch gives three).  From each guess, plain
+    Newton runs first; then deflation (Farrell, Birkisson & Funke, SIAM J.
+    Sci. Comput. 2015) runs Newton on the residual multiplied by a factor
+    that is infinite at every state already known, again and again until it
+    fails, and once more from just beside each state found.  Every candidate
+    is polished with plain Newton on the model itself, kept if it differs
+    from the others (scaled distance, `options.distinct_rtol`), and
+    classified from the poles of its small-signal model.  Several states are
+    never proof that there are no more: deflation and the ramp find states,
+    they do not count them.
 
     Not itself jittable (the number of states depends on the values); each
     returned `OperatingPoint` is differentiable, and
