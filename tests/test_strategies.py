@@ -168,6 +168,19 @@ def test_gradient_is_path_independent(strategy):
     assert g == pytest.approx(fd, rel=1e-6)
 
 
+@pytest.mark.slow  # compiles the whole chain (~13 s on 2 shared cores)
+def test_traced_auto_chain_matches_closed_form():
+    """Under grad and jit, auto is one pure-JAX chain; it reaches the same state by the
+    same strategy and its derivative is the implicit one."""
+    system = tunnel_diode()
+    g = float(jax.grad(lambda R: adlin.steady_state(system, params={"R": R}).x[0])(100.0))
+    assert g == pytest.approx(_dv_dR_closed_form(tunnel_reference()), rel=1e-9)
+    op = jax.jit(lambda R: adlin.steady_state(system, params={"R": R}))(100.0)
+    assert op.method == "pseudo-transient"
+    assert op.attempts.tolist() == [1, 5, 4, 0, -1]
+    assert int(op.evaluations) >= int(op.attempt_evaluations.sum())
+
+
 # --- batches ----------------------------------------------------------------------
 @pytest.mark.slow  # two batched programs (~13 s on 2 shared cores)
 def test_vmap_reports_per_lane_status_and_strategy():
