@@ -36,12 +36,14 @@ class StatesSummary:
     - `columns`: the quantities shown (outputs first, then unknowns), with units.
     - `used`: index of the state the report is built on.
     - `ramp_note`: how the source ramp ended.
+    - `notes`: remarks from the search (e.g. why a state is unclassified).
     """
 
     rows: list[StateRow]
     columns: list[tuple[str, str]]
     used: int
     ramp_note: str
+    notes: tuple[str, ...] = ()
 
     @property
     def several(self) -> bool:
@@ -82,7 +84,8 @@ def summarize_states(system, states, op) -> StatesSummary:
             found_by=row["found_by"],
             values={k: float(row["values"][k]) for k, _ in columns},
             growth_rate=row["growth_rate_rad_s"], used=row["index"] == used))
-    return StatesSummary(rows=rows, columns=columns, used=used, ramp_note=states.ramp_note)
+    return StatesSummary(rows=rows, columns=columns, used=used, ramp_note=states.ramp_note,
+                         notes=tuple(states.notes))
 
 
 def states_to_dict(s: StatesSummary) -> dict:
@@ -91,6 +94,7 @@ def states_to_dict(s: StatesSummary) -> dict:
         "used": s.used,
         "message": s.message(),
         "ramp": s.ramp_note,
+        "notes": list(s.notes),
         "states": [{"index": r.index, "class": r.label, "stable": r.stable,
                     "found_by": r.found_by, "values": r.values,
                     "growth_rate_rad_s": r.growth_rate, "used": r.used} for r in s.rows],

@@ -239,7 +239,9 @@ def _states(summary: Summary) -> list:
         mark = Text(f"{r.index} ◀ used", style="bold") if r.used else str(r.index)
         table.add_row(mark, Text(r.label, style="bold" if r.stable else ACCENT), r.found_by,
                       *(value_text(r.values[name], unit) for name, unit in s.columns), rate)
-    return [_heading("Steady states at these values"), Text(s.message(), style=ACCENT), table]
+    notes = [Text("note: " + n, style=DIM) for n in s.notes]
+    return [_heading("Steady states at these values"), Text(s.message(), style=ACCENT), table,
+            *notes]
 
 
 def _notes(summary: Summary) -> list:
