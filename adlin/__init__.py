@@ -29,3 +29,4 @@ from ._equilibria.find import SteadyStatesOptions as SteadyStatesOptions
 from ._continuation.branch import Branch as Branch
 from ._continuation.options import TrackOptions as TrackOptions
 from ._continuation.track import track as track
+from . import stimuli as stimuli

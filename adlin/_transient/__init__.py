@@ -1,0 +1,1 @@
+"""Nonlinear transients: stimuli, the index-1 vector field, `simulate`, `Transient`."""
