@@ -30,3 +30,4 @@ from ._continuation.branch import Branch as Branch
 from ._continuation.options import TrackOptions as TrackOptions
 from ._continuation.track import track as track
 from . import stimuli as stimuli
+from ._transient import Transient as Transient, simulate as simulate
