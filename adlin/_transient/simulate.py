@@ -211,7 +211,8 @@ def simulate(
     **Arguments:**
 
     - `system`: an `adlin.System`.
-    - `stimulus`: an `adlin.stimuli` stimulus or a tuple of them.
+    - `stimulus`: an `adlin.stimuli` stimulus or a tuple of them; None or ()
+      for the free response (e.g. from `x0`).
     - `t_end`: end time (s); the run starts at t = 0.
     - `op`: the operating point to start from and linearize around; default
       `adlin.steady_state(system, inputs, params)` (plain Newton when those
@@ -248,7 +249,7 @@ def simulate(
 
     if not isinstance(system, System):
         raise ModelError(f"simulate() needs an adlin.System, got {type(system).__name__}.")
-    items = as_stimuli(system, stimulus)
+    items = as_stimuli(system, stimulus, allow_empty=True)
     try:
         t_end_f = float(t_end)
     except (TypeError, jax.errors.ConcretizationTypeError):

@@ -413,14 +413,19 @@ def _common_period(freqs: Sequence[float]) -> float | None:
     return period
 
 
-def as_stimuli(system, stimulus) -> tuple[AbstractStimulus, ...]:
+def as_stimuli(system, stimulus, *, allow_empty: bool = False) -> tuple[AbstractStimulus, ...]:
     """Validate `stimulus` (one or a tuple/list) against the System's inputs.
+
+    With `allow_empty`, None or () means "no stimulus" (a free response).
 
     **Returns:** a tuple of stimuli.
 
     **Raises:** `ParameterError` for something that is not a stimulus, or an
     input name the System does not have (with the closest valid names).
     """
+    if allow_empty and (stimulus is None or (isinstance(stimulus, (tuple, list))
+                                             and not stimulus)):
+        return ()
     items = (stimulus,) if isinstance(stimulus, AbstractStimulus) else stimulus
     if not isinstance(items, (tuple, list)) or not items:
         raise ParameterError(
@@ -439,9 +444,10 @@ def as_stimuli(system, stimulus) -> tuple[AbstractStimulus, ...]:
 def input_deviation(system, stimulus, t) -> jax.Array:
     """Deviation of every input of `system` at time `t` (s): a (m,) float64 vector.
 
-    Stimuli on the same input add.  Jit-able (the stimulus is a pytree argument).
+    Stimuli on the same input add; None or () gives zeros.  Jit-able (the
+    stimulus is a pytree argument).
     """
-    items = as_stimuli(system, stimulus)
+    items = as_stimuli(system, stimulus, allow_empty=True)
     m = len(system.inputs)
     dev = jnp.zeros(m, dtype=jnp.float64)
     for s in items:
@@ -455,7 +461,7 @@ def input_deviation(system, stimulus, t) -> jax.Array:
 
 def stimulus_edges(stimulus, t_start: float, t_end: float) -> tuple[float, ...]:
     """Edges of all stimuli strictly inside (t_start, t_end), sorted."""
-    items = (stimulus,) if isinstance(stimulus, AbstractStimulus) else tuple(stimulus)
+    items = (stimulus,) if isinstance(stimulus, AbstractStimulus) else tuple(stimulus or ())
     out = set()
     for s in items:
         out.update(e for e in s.edges(t_end) if t_start < e < t_end)
