@@ -20,7 +20,6 @@ A plain string is short for `Bias` of that name.
 from __future__ import annotations
 
 import abc
-import math
 from collections.abc import Callable, Sequence
 from typing import Any, ClassVar
 
@@ -31,11 +30,20 @@ import jax.numpy as jnp
 from .._errors import AnalysisError, ParameterError, did_you_mean
 from .._system import System
 from .._units import si
+from .target_base import as_float, finite
 
 
 def _check_name(kind: str, name: str, valid: Sequence[str]) -> None:
     if name not in valid:
         raise ParameterError(f"unknown {kind} {name!r}: {did_you_mean(name, valid)}.")
+
+
+def _as_index(k):
+    """Field converter: integral numbers (numpy ones too) become Python ints."""
+    try:
+        return int(k) if int(k) == k else k
+    except (TypeError, ValueError):
+        return k
 
 
 class AbstractQuantity(eqx.Module):
@@ -124,10 +132,10 @@ class TransferMagnitude(AbstractQuantity):
 
     output: str = eqx.field(static=True)
     input: str = eqx.field(static=True)
-    f_hz: float = eqx.field(static=True)
+    f_hz: float = eqx.field(static=True, converter=as_float)
 
     def __check_init__(self):
-        if not (math.isfinite(self.f_hz) and self.f_hz >= 0):
+        if not (finite(self.f_hz) and self.f_hz >= 0):
             raise ParameterError(f"TransferMagnitude.f_hz must be a frequency >= 0 in Hz, got "
                                  f"{self.f_hz!r}.")
 
@@ -189,7 +197,7 @@ class Pole(_AbstractPoleQuantity):
     part).
     """
 
-    index: int = eqx.field(static=True)
+    index: int = eqx.field(static=True, converter=_as_index)
     complex_valued: ClassVar[bool] = True
 
     def label(self) -> str:
@@ -208,7 +216,7 @@ class PoleFrequency(_AbstractPoleQuantity):
     **Fields:** `index`: row of `LinearModel.pole_table()`.
     """
 
-    index: int = eqx.field(static=True)
+    index: int = eqx.field(static=True, converter=_as_index)
 
     def label(self) -> str:
         return f"pole {self.index} frequency"
@@ -226,7 +234,7 @@ class PoleDamping(_AbstractPoleQuantity):
     **Fields:** `index`: row of `LinearModel.pole_table()`.
     """
 
-    index: int = eqx.field(static=True)
+    index: int = eqx.field(static=True, converter=_as_index)
 
     def label(self) -> str:
         return f"pole {self.index} damping"
