@@ -31,3 +31,7 @@ from ._continuation.options import TrackOptions as TrackOptions
 from ._continuation.track import track as track
 from . import stimuli as stimuli
 from ._transient import Transient as Transient, simulate as simulate
+from . import targets as targets
+from ._design import quantities as quantities
+from ._design.sensitivities import sensitivities as sensitivities
+from ._design.sensitivity_table import Sensitivities as Sensitivities
