@@ -32,6 +32,6 @@ from ._continuation.track import track as track
 from . import stimuli as stimuli
 from ._transient import Transient as Transient, simulate as simulate
 from . import targets as targets
-from ._design import quantities as quantities
+from . import quantities as quantities
 from ._design.sensitivities import sensitivities as sensitivities
 from ._design.sensitivity_table import Sensitivities as Sensitivities
