@@ -95,4 +95,5 @@ CASE = HardCase(
     predicate=_region,
     hand=_hand,
     reference_guess=_guess(),
+    slow=True,
 )

@@ -31,6 +31,7 @@ import functools
 
 from ..._circuit import Circuit
 from ..._system import System
+from ...strategies import Auto
 from ._case import NEWTON_OTHER_STATE, Expected, HardCase
 
 V_DD = 1.8  # V
@@ -87,5 +88,6 @@ CASE = HardCase(
     intended="q at the supply, qb at ground (the power-up state the preset selects)",
     predicate=_region,
     hand=_hand,
+    strategy=Auto(prefer_stable=True),
     reference_guess={"v_battery": V_DD, "v_vdd": V_DD, "v_pre": V_DD, "v_q": 1.7, "v_qb": 0.1},
 )

@@ -37,6 +37,7 @@ import scipy.constants as const
 
 from ..._circuit import Circuit
 from ..._system import System
+from ...strategies import Auto
 from ._case import NEWTON_OTHER_STATE, Expected, HardCase
 
 V_DD = 3.3  # V
@@ -98,6 +99,7 @@ CASE = HardCase(
     intended="about 10 uA in each branch, I = V_T ln(8) / 5.4 kOhm, start-up off",
     predicate=_region,
     hand=_hand,
+    strategy=Auto(prefer_stable=True),
     reference_guess={"v_battery": V_DD, "v_vdd": V_DD, "v_a": 0.65, "v_pg": 2.35, "v_e2": 0.054,
                      "v_su": 0.02},
     slow=True,

@@ -2,12 +2,15 @@
 
 A 1.5 V cell and the divider ``RA`` (130 Ohm) / ``RB`` (22 Ohm) make a stiff
 0.22 V source (18.8 Ohm); the inductor ``L1`` (2.2 uH) carries the bias to a
-germanium tunnel diode ``TD`` with the tank capacitor ``CT`` (100 pF) across
+germanium tunnel diode ``TD`` with the tank capacitor ``CT`` (1 nF) across
 it.  The diode sits between its peak (65 mV) and its valley, where its
-differential resistance is about -40 Ohm; the bias source is stiffer than
-that, so there is exactly one steady state, and the negative resistance
-undamps the tank: the bias point is unstable and the circuit oscillates near
-1/(2 pi sqrt(L C)) = 10.7 MHz.
+differential resistance is about -43 Ohm; the bias source is stiffer than
+that, so there is exactly one steady state.  The negative resistance undamps
+the tank: the small-signal characteristic equation
+L C s^2 + (R C - G L) s + (1 - R G) = 0 (R the source resistance, -G the
+diode's differential conductance) has a complex pole pair in the right
+half-plane, so the bias point is unstable and the circuit oscillates (it
+starts near 2.3 MHz).
 
 Intended state: that bias point (unstable on purpose).  A solver that prefers
 stable states must still return it, since no stable one exists.
@@ -40,6 +43,7 @@ from ._case import NEWTON_CONVERGES, Expected, HardCase
 
 V_CELL = 1.5
 RA, RB = 130.0, 22.0
+L_BIAS, C_TANK = 2.2e-6, 1e-9
 TUNNEL = dict(peak_current=4.7e-3, peak_voltage=0.065, saturation_current=60e-9,
               emission_coefficient=1.5)
 
@@ -61,9 +65,9 @@ def tunnel_oscillator() -> System:
     c.voltage_source("VC", "plus", "gnd", "v_cell")
     c.resistor("RA", "plus", "bias", RA)
     c.resistor("RB", "bias", "gnd", RB)
-    c.inductor("L1", "bias", "td", 2.2e-6)
+    c.inductor("L1", "bias", "td", L_BIAS)
     c.two_terminal("TD", "td", "gnd", current=tunnel_current, params=TUNNEL)
-    c.capacitor("CT", "td", "gnd", 100e-12)
+    c.capacitor("CT", "td", "gnd", C_TANK)
     c.output("v_diode", "td")
     return c.build()
 
@@ -86,6 +90,28 @@ def bias_voltage() -> float:
     v_th = mpmath.mpf(V_CELL) * RB / (RA + RB)
     r_th = mpmath.mpf(RA) * RB / (RA + RB)
     return float(mpmath.findroot(lambda v: (v_th - v) / r_th - _law(v), mpmath.mpf("0.15")))
+
+
+def differential_conductance(v: float) -> float:
+    """di/dv of the diode law at v (S), by mpmath's numerical derivative at 30 digits."""
+    mpmath.mp.dps = 30
+    return float(mpmath.diff(_law, mpmath.mpf(v)))
+
+
+def small_signal_poles() -> tuple[complex, complex]:
+    """Roots of L C s^2 + (R C + g L) s + (1 + R g) = 0, g = di/dv at the bias.
+
+    The tank's characteristic equation by hand: KCL at the diode,
+    (s C + g) V = I_L, and the bias branch, (s L + R) I_L = -V, with R = RA || RB
+    (nodal analysis, e.g. Alexander & Sadiku, Fundamentals of Electric
+    Circuits, 6th ed., ch. 8, second-order circuits).
+    """
+    import numpy as np
+
+    g = differential_conductance(bias_voltage())
+    r = RA * RB / (RA + RB)
+    roots = np.roots([L_BIAS * C_TANK, r * C_TANK + g * L_BIAS, 1.0 + r * g])
+    return complex(roots[0]), complex(roots[1])
 
 
 def _region(op) -> bool:
