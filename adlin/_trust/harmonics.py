@@ -21,8 +21,8 @@ from .._errors import AnalysisError
 class HarmonicSpectrum(eqx.Module):
     """Amplitudes of harmonics 0..H of a coherently sampled periodic record.
 
-    - `amplitudes`: (H + 1,) peak amplitudes; entry 0 is the mean (DC), entry
-      k >= 1 the amplitude of the k-th harmonic, in the waveform's units.
+    - `amplitudes`: (H + 1,) entry 0 is the mean (DC, signed), entry k >= 1
+      the peak amplitude of the k-th harmonic, in the waveform's units.
     - `phases`: (H + 1,) phases (rad) of cos(k w t + phase) at the record's
       first sample.
     - `noise_floor`: the largest amplitude in a bin that is not a harmonic
@@ -80,7 +80,8 @@ def coherent_spectrum(y, periods: int, samples_per_period: int,
     spec = jnp.fft.rfft(y) / y.shape[0]
     bins = periods * np.arange(n_harmonics + 1)
     c = spec[bins]
-    amps = jnp.abs(c) * jnp.where(jnp.arange(n_harmonics + 1) == 0, 1.0, 2.0)
+    # entry 0 keeps its sign (the mean), the others are peak amplitudes
+    amps = jnp.concatenate([jnp.real(c[:1]), 2.0 * jnp.abs(c[1:])])
     fundamental = amps[1]
     other = np.ones(spec.shape[0], dtype=bool)
     other[::periods] = False  # every harmonic bin, also those above n_harmonics
