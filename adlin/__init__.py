@@ -35,3 +35,6 @@ from . import targets as targets
 from . import quantities as quantities
 from ._design.sensitivities import sensitivities as sensitivities
 from ._design.sensitivity_table import Sensitivities as Sensitivities
+from ._trust.distortion import distortion as distortion
+from ._trust.distortion_options import DistortionOptions as DistortionOptions
+from ._trust.distortion_result import Distortion as Distortion
