@@ -32,8 +32,13 @@ def ramp(
     max_steps: int,
     corrector_iterations: int,
     active=True,
+    max_change: float | None = None,
+    keep_sign: bool = False,
 ):
     """Follow F(x, t) = 0 from t = 0 to t = 1.
+
+    `max_change` and `keep_sign` switch on the step controls described in the
+    module docstring (off by default).
 
     **Returns:** (x, reason, evaluations, steps, t_reached): the last accepted
     point, a reason code, residual evaluations, continuation steps tried and
@@ -41,6 +46,15 @@ def ramp(
     """
     opts = problem.corrector_options(corrector_iterations)
     dtype = x0.dtype
+    volts = jnp.asarray(problem.node_mask)
+
+    def short_enough(x_old, x_new, t_new):
+        if max_change is None:
+            return jnp.asarray(True)
+        both = jnp.maximum(jnp.abs(x_old), jnp.abs(x_new))
+        scale = jnp.max(jnp.where(volts, both, 0.0)) / jnp.maximum(t_new, 1e-300)
+        moved = jnp.where(volts, jnp.abs(x_new - x_old), 0.0)
+        return jnp.all(moved <= max_change * scale)
 
     def cond(s):
         return active & (s["reason"] < 0) & (s["k"] < max_steps)
@@ -49,7 +63,10 @@ def ramp(
         started = s["t"] >= 0
         t_try = jnp.where(started, jnp.minimum(s["t"] + s["dt"], 1.0), 0.0)
         res = newton_solve(lambda x: F(x, t_try), s["x"], problem.junctions, opts)
-        ok = res.status == 0
+        sign = jnp.linalg.slogdet(res.jacobian)[0] if keep_sign else jnp.asarray(0.0, dtype)
+        same_side = (sign == s["sign"]) | (s["sign"] == 0) if keep_sign else True
+        # the start point (t = 0) is taken as it is; the controls apply to later steps
+        ok = (res.status == 0) & (~started | (short_enough(s["x"], res.x, t_try) & same_side))
         dt = jnp.where(ok, jnp.minimum(2.0 * s["dt"], max_step), 0.5 * s["dt"])
         reason = jnp.where(
             ok & (t_try >= 1.0), CONVERGED,
@@ -58,6 +75,7 @@ def ramp(
         return {
             "x": jnp.where(ok, res.x, s["x"]),
             "t": jnp.where(ok, t_try, s["t"]),
+            "sign": jnp.where(ok, sign, s["sign"]),
             "dt": dt,
             "k": s["k"] + 1,
             "reason": reason,
@@ -67,6 +85,7 @@ def ramp(
     init = {
         "x": x0,
         "t": jnp.asarray(-1.0, dtype),
+        "sign": jnp.asarray(0.0, dtype),
         "dt": jnp.asarray(first_step, dtype),
         "k": jnp.asarray(0),
         "reason": jnp.asarray(-1),

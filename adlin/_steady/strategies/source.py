@@ -22,8 +22,18 @@ class SourceStepping(AbstractStrategy):
     With every source at zero most circuits have an obvious solution (all
     nodes near ground); each later point starts from the previous one, so
     Newton always starts close.  The scale steps adapt: halved when Newton
-    fails, doubled when it succeeds; a step below `min_step` stops the search
-    (step size underflow).  Source stepping is the classical embedding of
+    fails or when the step breaks one of the two branch-keeping controls below,
+    doubled when it succeeds; a step below `min_step` stops the search (step
+    size underflow).
+
+    The branch-keeping controls (see `ramp`) make it follow the branch that
+    starts at zero sources, i.e. the state the circuit reaches when its
+    supplies ramp up slowly, instead of jumping to another solution that
+    Newton happens to reach from the previous point (a latch's metastable
+    saddle): no node voltage moves by more than `max_change` times the largest
+    node voltage (extrapolated to full sources) in one step, and the sign of
+    the Jacobian determinant, which changes only at a fold or a bifurcation
+    point, must stay that of the start.  Source stepping is the classical embedding of
     circuit analysis (Allgower & Georg, Numerical Continuation Methods, SIAM
     2003, ch. 1, for the embedding idea); it cannot pass a fold of the
     solution path (see `NewtonHomotopy`).
@@ -35,6 +45,9 @@ class SourceStepping(AbstractStrategy):
     - `first_step`, `min_step`, `max_step`: steps in the scale s (0 to 1).
     - `max_steps`: continuation steps before giving up.
     - `corrector_iterations`: Newton iterations allowed per point.
+    - `max_change`: largest change of a node voltage in one step, relative to
+      the largest node voltage extrapolated to full sources (None: no bound).
+    - `keep_jacobian_sign`: reject steps across which det(df/dx) changes sign.
     """
 
     sources: tuple[str, ...] | None = eqx.field(static=True, default=None)
@@ -43,12 +56,15 @@ class SourceStepping(AbstractStrategy):
     max_step: float = eqx.field(static=True, default=0.5)
     max_steps: int = eqx.field(static=True, default=200)
     corrector_iterations: int = eqx.field(static=True, default=40)
+    max_change: float | None = eqx.field(static=True, default=0.25)
+    keep_jacobian_sign: bool = eqx.field(static=True, default=True)
 
     name: ClassVar[str] = "source"
     code: ClassVar[int] = SOURCE
 
     def __init__(self, sources=None, *, first_step=0.1, min_step=1e-5, max_step=0.5,
-                 max_steps=200, corrector_iterations=40):
+                 max_steps=200, corrector_iterations=40, max_change=0.25,
+                 keep_jacobian_sign=True):
         if isinstance(sources, str):
             sources = (sources,)
         if sources is not None:
@@ -63,12 +79,16 @@ class SourceStepping(AbstractStrategy):
         self.max_step = max_step
         self.max_steps = max_steps
         self.corrector_iterations = corrector_iterations
+        self.max_change = max_change
+        self.keep_jacobian_sign = bool(keep_jacobian_sign)
 
     def __check_init__(self):
         o = type(self).__name__
         positive(o, first_step=self.first_step, min_step=self.min_step, max_step=self.max_step)
         ordered(o, "min_step", "max_step", self.min_step, self.max_step)
         at_least(o, 1, max_steps=self.max_steps, corrector_iterations=self.corrector_iterations)
+        if self.max_change is not None:
+            positive(o, max_change=self.max_change)
 
     def masks(self, input_names, param_names):
         """Boolean masks (inputs, params) of the scaled sources.
@@ -98,5 +118,6 @@ class SourceStepping(AbstractStrategy):
         x, reason, evals, steps, s = ramp(
             problem, F, x0, first_step=self.first_step, min_step=self.min_step,
             max_step=self.max_step, max_steps=self.max_steps,
-            corrector_iterations=self.corrector_iterations, active=active)
+            corrector_iterations=self.corrector_iterations, active=active,
+            max_change=self.max_change, keep_sign=self.keep_jacobian_sign)
         return single_attempt(SOURCE, x, reason, evals, steps, jnp.maximum(s, 0.0), active=active)
