@@ -38,3 +38,7 @@ from ._design.sensitivity_table import Sensitivities as Sensitivities
 from ._trust.distortion import distortion as distortion
 from ._trust.distortion_options import DistortionOptions as DistortionOptions
 from ._trust.distortion_result import Distortion as Distortion
+from ._trust.linear_response import linear_response as linear_response
+from ._trust.compare import Comparison as Comparison, compare as compare
+from ._trust.linear_range import linear_range as linear_range
+from ._trust.range_result import LinearRange as LinearRange
