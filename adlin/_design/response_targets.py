@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import functools
+
 import equinox as eqx
 import jax
 import jax.numpy as jnp
@@ -107,6 +109,7 @@ class DCGain(AbstractTarget):
         return (("dc gain", ""),)
 
 
+@functools.partial(jax.jit, static_argnums=(1, 2, 3, 4, 5))
 def bandwidth_hz(model, i: int, o: int, reference_hz: float, points: int = 241,
                  bisections: int = 60):
     """First frequency above `reference_hz` where |H|^2 falls to half its value there.
@@ -206,7 +209,7 @@ class Bandwidth(AbstractTarget):
 
     def achieved(self, op, model):
         i, o = model._pair(self.input, self.output)
-        return bandwidth_hz(model, i, o, self.reference_hz)[None]
+        return bandwidth_hz(model, i, o, float(self.reference_hz))[None]
 
     def met(self, op, model):
         bw = self.achieved(op, model)[0]
