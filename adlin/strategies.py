@@ -12,8 +12,9 @@ checked when it is made; pass one, or its name, as `strategy=`:
   (Kelley & Keyes, SIAM J. Numer. Anal. 1998).
 - `NewtonHomotopy()` ("homotopy"): the Newton homotopy followed by
   pseudo-arclength continuation (Allgower & Georg).
-- `Auto(order=..., prefer_stable=False)` ("auto", the default): try them from
-  cheap to robust.
+- `Auto(order=..., prefer_stable=True)` ("auto", the default): try them from
+  cheap to robust; with concrete values, an unstable state found is replaced
+  by the stable state the circuit powers up in, when there is one.
 
 Whichever finds the point, it is polished by Newton and differentiated by the
 implicit function theorem, so derivatives do not depend on the strategy.

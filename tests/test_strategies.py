@@ -10,11 +10,15 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 import pytest
+import scipy.linalg
 import scipy.optimize
 import sympy
 from closed_forms import VT, diode_resistor, diode_resistor_exact, van_der_pol
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 import adlin
+from adlin.scenarios.hard import latch as hard_latch
 from adlin.strategies import (
     Auto,
     ConductanceStepping,
@@ -249,26 +253,104 @@ def test_prefer_stable_leaves_the_saddle_of_a_latch():
     """With a = 2 the origin is a saddle: the Jacobian there is [[-1, a], [a, -1]], with
     eigenvalues -1 +- a = 1, -3 (hand linearization).  The stable states are
     +-(s, s) with s = a tanh(s) (root by scipy's brentq), where the eigenvalues
-    -1 +- a sech^2(s) are both negative."""
-    op = adlin.steady_state(latch())
+    -1 +- a sech^2(s) are both negative.  The model has no input, so the power-up run
+    starts and stays at the saddle; the run from beside it along +d, d = (1, 1) with
+    its largest entry positive, is tried first and ends at +(s, s)."""
+    op = adlin.steady_state(latch(), strategy="newton")
     np.testing.assert_allclose(np.asarray(op.x), [0.0, 0.0], atol=1e-14)
     np.testing.assert_allclose(np.sort(adlin.linearize(latch(), op).poles().real), [-3.0, 1.0],
                                rtol=1e-12)
-    stable = adlin.steady_state(latch(), strategy=Auto(prefer_stable=True))
+    stable = adlin.steady_state(latch())  # auto prefers a stable state by default
     s_ref = scipy.optimize.brentq(lambda s: s - 2.0 * np.tanh(s), 0.5, 3.0, xtol=1e-15)
-    np.testing.assert_allclose(np.abs(np.asarray(stable.x)), [s_ref, s_ref], rtol=1e-12)
+    np.testing.assert_allclose(np.asarray(stable.x), [s_ref, s_ref], rtol=1e-12)
     assert stable.method == "pseudo-transient"
     assert [name for name, _, _ in stable.history] == ["newton", "pseudo-transient"]
     sech2 = 1.0 / math.cosh(s_ref) ** 2
     np.testing.assert_allclose(np.sort(adlin.linearize(latch(), stable).poles().real),
                                [-1 - 2 * sech2, -1 + 2 * sech2], rtol=1e-10)
+    kept = adlin.steady_state(latch(), strategy=Auto(prefer_stable=False))
+    np.testing.assert_allclose(np.asarray(kept.x), [0.0, 0.0], atol=1e-14)
 
 
 def test_prefer_stable_keeps_an_oscillator_bias():
     """The Van der Pol origin is its only equilibrium and unstable for mu > 0 (Strogatz,
-    Nonlinear Dynamics and Chaos, 2nd ed., sec. 7.6): it must still be returned."""
-    op = adlin.steady_state(van_der_pol(0.5), guess={"x": 0.3, "y": -0.2},
-                            strategy=Auto(prefer_stable=True))
+    Nonlinear Dynamics and Chaos, 2nd ed., sec. 7.6): it must still be returned, with a
+    note that no stable state was found."""
+    op = adlin.steady_state(van_der_pol(0.5), guess={"x": 0.3, "y": -0.2})
     np.testing.assert_allclose(np.asarray(op.x), [0.0, 0.0], atol=1e-12)
-    assert op.method == "newton"
-    assert "reached only an unstable state" in op.attempts_message
+    assert op.method == "newton" and bool(op.converged)
+    assert "pseudo-transient: found no stable state" in op.attempts_message
+
+
+@functools.cache
+def bistable_cell() -> adlin.System:
+    """dx/dt = x - x^3: unstable at 0 (slope +1), stable at +-1 (slope -2)."""
+    return adlin.System.from_ode(lambda x, u, p: jnp.stack([x[0] - x[0] ** 3]),
+                                 states=("x",), name="bistable_cell")
+
+
+@settings(max_examples=12, deadline=None)
+@given(start=st.floats(1e-9, 0.9), sign=st.sampled_from([1.0, -1.0]))
+def test_storage_pseudo_transient_follows_the_flow_away_from_an_unstable_state(start, sign):
+    """Law of the phase line of dx/dt = x - x^3 (Strogatz, Nonlinear Dynamics and Chaos,
+    2nd ed., sec. 2.2): every solution that starts in (0, 1) ends at +1, every one in
+    (-1, 0) at -1.  Backward Euler with growing steps would fall back into the unstable
+    root 0 (it is a root of f like the others); the storage-scaled run must not."""
+    op = adlin.steady_state(bistable_cell(), guess={"x": sign * start},
+                            strategy=PseudoTransient(scaling="storage"))
+    assert float(op["x"]) == pytest.approx(sign, rel=1e-12)
+
+
+def test_storage_pseudo_transient_checks_its_ramp():
+    with pytest.raises(adlin.ParameterError, match="ramp_steps .* must be smaller"):
+        PseudoTransient(scaling="storage", ramp_steps=400, max_steps=400)
+    with pytest.raises(adlin.ParameterError, match="max_change must be positive"):
+        SourceStepping(max_change=0.0)
+
+
+# --- the preset latch of the hard corpus: the state it powers up in --------------------
+@functools.cache
+def latch_power_up_reference() -> np.ndarray:
+    """Outside definition of the power-up state: scipy.optimize.root (MINPACK hybrd)
+    along a fine supply ramp (all inputs times s, s = 0 -> 1 in 400 steps, each point
+    from the previous one), then polished at s = 1."""
+    system = hard_latch.preset_latch()
+    u1 = np.asarray(system.input_vector())
+    p = system.param_vector()
+    f = jax.jit(lambda x, u: system.f(x, u, p))
+    jac = jax.jit(jax.jacfwd(lambda x, u: system.f(x, u, p)))
+    x = np.zeros(system.n)
+    for s in np.linspace(0.0, 1.0, 401)[1:]:
+        sol = scipy.optimize.root(lambda x, u=s * u1: np.asarray(f(x, u)), x,
+                                  jac=lambda x, u=s * u1: np.asarray(jac(x, u)), method="hybr",
+                                  options={"xtol": 1e-13})
+        assert sol.success
+        x = sol.x
+    return x
+
+
+def _stable(system, op) -> bool:
+    lin = adlin.linearize(system, op)
+    w = scipy.linalg.eigvals(np.asarray(lin.A), np.asarray(lin.E))
+    return bool(np.all(w[np.isfinite(w)].real < 0))
+
+
+@pytest.mark.slow  # compiles Newton, the power-up run and source stepping (~1 min loaded)
+def test_preset_latch_reaches_its_power_up_state():
+    """Newton from zero lands on the latch's metastable saddle; auto (prefer_stable by
+    default) and source stepping (branch-keeping controls) both return the state a slow
+    supply ramp ends in, q at the supply and qb at ground (the corpus entry's intended
+    state), which is stable (scipy QZ on the pencil (A, E))."""
+    system = hard_latch.preset_latch()
+    ref = latch_power_up_reference()
+    q, qb = system.unknowns.index("v_q"), system.unknowns.index("v_qb")
+    assert ref[q] > 0.9 * hard_latch.V_DD and ref[qb] < 0.1 * hard_latch.V_DD
+    saddle = adlin.steady_state(system, strategy="newton")
+    assert not _stable(system, saddle)
+    for strategy in ("auto", "source"):
+        op = adlin.steady_state(system, strategy=strategy)
+        np.testing.assert_allclose(np.asarray(op.x), ref, rtol=1e-7, atol=1e-9)
+        assert _stable(system, op)
+    op = adlin.steady_state(system)
+    assert op.method == "pseudo-transient"
+    assert [name for name, _, _ in op.history] == ["newton", "pseudo-transient"]

@@ -120,7 +120,7 @@ def _auto_concrete(compiled, auto: Auto, u, p, x0) -> OperatingPoint:
     if auto.prefer_stable and bool(final.converged):
         from .stability import prefer_stable
 
-        final = prefer_stable(compiled, final, u, p)
+        final = prefer_stable(compiled, final, u, p, x0)
     return final
 
 
@@ -143,7 +143,11 @@ def steady_state(
     Newton (converged when both the update and the scaled residual meet the
     tolerances), and `x` is differentiable with respect to `inputs` and
     `params` by the implicit function theorem, so derivatives do not depend on
-    the strategy.  `op.method` names the strategy that succeeded,
+    the strategy.  With concrete values, auto also checks the poles of the
+    state found: if it is unstable (a latch's metastable point, a reference's
+    half-started state), the stable state the circuit powers up in is
+    returned instead when there is one (`Auto(prefer_stable=False)` turns
+    this off; see `adlin.strategies.Auto`).  `op.method` names the strategy that succeeded,
     `op.evaluations` counts residual evaluations over everything tried, and
     `op.history` says what each strategy did.
 

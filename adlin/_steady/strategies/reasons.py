@@ -20,7 +20,7 @@ STEP_UNDERFLOW = 4  # the adaptive step fell below its floor
 START_FAILED = 5  # no solution at the start of the path
 TURNED_BACK = 6  # the homotopy path ran back past its start
 POLISH_FAILED = 7  # the search ended, but Newton from its end point did not converge
-UNSTABLE_ONLY = 8  # converged, but only to an unstable state (Auto(prefer_stable=True))
+NO_STABLE_STATE = 8  # Auto(prefer_stable=True): the circuit's dynamics reached no stable state
 
 # Strategy codes: the slot of each strategy in `OperatingPoint.attempts`.
 NEWTON, CONDUCTANCE, SOURCE, PSEUDO_TRANSIENT, HOMOTOPY = range(5)
@@ -65,7 +65,9 @@ def describe(strategy: int, reason: int, progress: float = float("nan"), steps: 
         START_FAILED: f"no solution at the start of the path ({at})",
         TURNED_BACK: f"the path turned back past its start ({at})",
         POLISH_FAILED: "Newton from the end of the path did not converge",
-        UNSTABLE_ONLY: "reached only an unstable state, not used",
+        NO_STABLE_STATE: ("found no stable state by following the circuit's dynamics "
+                          "(power-up, and from beside the unstable state); the unstable "
+                          "state is kept"),
     }.get(reason, f"unknown reason code {reason}")
 
 
@@ -79,5 +81,5 @@ REASON_MESSAGES = {
     START_FAILED: "no solution at the start of a continuation path",
     TURNED_BACK: "a homotopy path turned back past its start",
     POLISH_FAILED: "Newton from the end of a continuation path did not converge",
-    UNSTABLE_ONLY: "a search reached only an unstable state",
+    NO_STABLE_STATE: "no stable state found; the unstable one is kept",
 }
