@@ -125,11 +125,12 @@ class Sensitivities(eqx.Module):
         """Readable text: each quantity with its `top` most influential parameters."""
         out = []
         vals = np.asarray(self.values)
+        w = max([16, *(len(p) for p in self.parameters)])
         for qi, (name, unit) in enumerate(zip(self.quantities, self.units, strict=True)):
             out.append(f"{name} = {_fmt(vals[qi], unit)}")
-            out.append(f"    {'parameter':<16} {'value':>12} {'(p/y) dy/dp':>22} {'dy/dp':>26}")
+            out.append(f"    {'parameter':<{w}} {'value':>12} {'(p/y) dy/dp':>22} {'dy/dp':>26}")
             for row in self.ranked(name, top):
-                out.append(f"    {row['parameter']:<16} {si(row['parameter_value']):>12} "
+                out.append(f"    {row['parameter']:<{w}} {si(row['parameter_value']):>12} "
                            f"{_fmt(row['normalized']):>22} {_fmt(row['derivative']):>26}")
         out.extend(f"note: {n}" for n in self.notes)
         return out
