@@ -225,3 +225,50 @@ def test_method_on_the_model_and_errors():
         linear_response(lin, Step("v_in", 0.1), t[::-1])
     with pytest.raises(adlin.AnalysisError, match="'grid'"):
         linear_response(lin, Step("v_in", 0.1), t, method="gird")
+
+
+# --- adlin.compare ----------------------------------------------------------------------------
+
+def test_compare_on_a_linear_circuit_is_exact_to_solver_tolerance():
+    # RC step response a (1 - exp(-(t - t0)/tau)) (Alexander & Sadiku, 6th ed.,
+    # sec. 7.6): the linear waveform equals it to rounding, the nonlinear one
+    # (the circuit is linear) to the solver's tolerance, and the swing is a
+    # (1 - exp(-(t_end - t0)/tau)).
+    s = rc()
+    op = adlin.steady_state(s)
+    tau, a, t0, t_end = R_RC * C_RC, 0.5, 1e-4, 5e-3
+    c = adlin.compare(s, op, Step("v_in", a, t0=t0), t_end, n_points=201)
+    t = np.asarray(c.t)
+    ref = 1.0 + np.where(t >= t0, a * (1 - np.exp(-(t - t0) / tau)), 0.0)
+    y_nl, y_lin = (np.asarray(v) for v in c["v_c"])
+    assert np.max(np.abs(y_lin - ref)) < 1e-13
+    assert np.max(np.abs(y_nl - ref)) < 1e-6 * a
+    assert float(c.swing[0]) == pytest.approx(a * (1 - math.exp(-(t_end - t0) / tau)), rel=1e-12)
+    assert float(c.peak_error[0]) < 1e-6
+    assert float(c.rms_error[0]) <= float(c.peak_error[0])
+    assert int(c.status) == 0 and int(c.steps) > 0
+    assert "v_c" in str(c)
+
+
+def test_compare_on_a_diode_gives_the_static_error():
+    # A static diode-resistor circuit: every sample is the new steady state, so
+    # the error is |v(V + a) - v(V) - G a| / |G a| at all times, with v from the
+    # Lambert W closed form (Banwell & Jayakumar, Electronics Letters 36(4),
+    # 2000) and G = r_d / (R + r_d), r_d = V_T / (I + I_S) (Shockley law).
+    from closed_forms import VT, diode_resistor, diode_resistor_exact
+
+    V, R, Is, a = 5.0, 1e3, 1e-14, -0.5
+    s = diode_resistor(V, R, Is)
+    op = adlin.steady_state(s)
+    c = adlin.compare(s, op, Step("v_s", a), 1e-3, n_points=5, output="v_a")
+    v0 = diode_resistor_exact(V, R, Is)
+    r_d = VT / ((V - v0) / R + Is)
+    G = r_d / (R + r_d)
+    rel = abs(diode_resistor_exact(V + a, R, Is) - v0 - G * a) / abs(G * a)
+    assert float(c.final_error[0]) == pytest.approx(rel, rel=1e-6)
+    assert float(c.peak_error[0]) == pytest.approx(rel, rel=1e-6)
+    assert c.output_names == ("v_a",) and c.stimulus_inputs == ("v_s",)
+    with pytest.raises(adlin.ParameterError, match="'v_b'.*'v_a'"):
+        adlin.compare(s, op, Step("v_s", a), 1e-3, output="v_b")
+    with pytest.raises(adlin.ParameterError, match="no output 'x'"):
+        c["x"]
