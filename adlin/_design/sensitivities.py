@@ -147,7 +147,7 @@ def sensitivities(
     - `system`: an `adlin.System`.
     - `inputs`, `params`: dicts name -> value overriding the defaults
       (concrete numbers: this is an analysis, not a traced function).
-    - `of`: the quantities (`adlin.sensitivity` objects `Bias`, `DCGain`,
+    - `of`: the quantities (`adlin.quantities`: `Bias`, `DCGain`,
       `TransferMagnitude`, `Pole`, `PoleFrequency`, `PoleDamping`,
       `Expression`), or names of unknowns/outputs (short for `Bias`).
     - `wrt`: names of parameters and/or inputs to differentiate against;

@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Sequence
 
+import jax
 import jax.numpy as jnp
 
 from .._errors import ParameterError
@@ -45,7 +47,21 @@ def evaluate(targets: Sequence[AbstractTarget] | AbstractTarget, op, model
 
     **Returns:** one `TargetResult` (achieved, met, weighted loss) per target.
     """
-    return tuple(t.evaluate(op, model) for t in as_targets(targets))
+    targets = as_targets(targets)
+    leaves = jax.tree_util.tree_leaves((op, model))
+    if any(isinstance(leaf, jax.core.Tracer) for leaf in leaves):
+        return _evaluate(targets, op, model)
+    # concrete values: one compiled program per target set instead of op-by-op dispatch
+    return _compiled(targets)(op, model)
+
+
+def _evaluate(targets, op, model):
+    return tuple(t.evaluate(op, model) for t in targets)
+
+
+@functools.lru_cache(maxsize=32)
+def _compiled(targets: tuple[AbstractTarget, ...]):
+    return jax.jit(functools.partial(_evaluate, targets))
 
 
 def total_loss(targets: Sequence[AbstractTarget] | AbstractTarget, op, model):
