@@ -22,7 +22,7 @@ import numpy as np
 import pytest
 import scipy.constants as const
 import scipy.linalg
-from closed_forms import series_rlc
+from closed_forms import descriptor_divider, series_rlc
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -181,6 +181,26 @@ def test_rc_pole_normalized_sensitivities_are_minus_one(R, C):
     for q in ("pole 0", "pole 0 frequency"):
         for p in ("R", "C"):
             assert sens.normalized_sensitivity(q, p) == pytest.approx(-1.0, rel=1e-9, abs=1e-12)
+
+
+def test_descriptor_model_pole_and_gain():
+    # singular E: H(s) = R3/(R1+R3) (1 + s C Resr) / (1 + s C (Rth + R2 + Resr)), Rth = R1||R3
+    # (Thevenin, Alexander & Sadiku sec. 4.5): pole -1/(C Rt) with Rt = Rth + R2 + Resr, so
+    # (p/s) ds/dp = -1 for C, -R2/Rt for R2, -Resr/Rt for Resr; the DC gain R3/(R1+R3) has
+    # normalized sensitivities -R1/(R1+R3) (R1) and +R1/(R1+R3) (R3), none from R2, C, Resr.
+    R1, R2, R3, Resr, C = 1e3, 2.2e3, 4.7e3, 50.0, 1e-7
+    sens = adlin.sensitivities(descriptor_divider(R1, R2, R3, Resr, C),
+                               of=[Pole(0), DCGain("v_b", "v_in")])
+    rt = R1 * R3 / (R1 + R3) + R2 + Resr
+    assert complex(sens.values[0]) == pytest.approx(-1 / (C * rt), rel=1e-12)
+    for p, want in (("C", -1.0), ("R2", -R2 / rt), ("Resr", -Resr / rt)):
+        assert sens.normalized_sensitivity("pole 0", p) == pytest.approx(want, rel=1e-9)
+    gain = "dc gain v_b/v_in"
+    k = R1 / (R1 + R3)
+    assert sens.normalized_sensitivity(gain, "R1") == pytest.approx(-k, rel=1e-9)
+    assert sens.normalized_sensitivity(gain, "R3") == pytest.approx(k, rel=1e-9)
+    for p in ("R2", "C", "Resr"):
+        assert abs(sens.normalized_sensitivity(gain, p)) < 1e-12
 
 
 def test_transfer_magnitude_of_rc_lowpass():
