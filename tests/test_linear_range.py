@@ -160,7 +160,7 @@ def _ce_reference():
             e = math.exp((vb - ve) / VT)
             return (IS * e + IS / BR + IS * (e - 1) / BF - IS / BR) * RE - ve
 
-        ve = so.brentq(kcl, vb - 1.2, vb, xtol=1e-15, rtol=1e-15)
+        ve = so.brentq(kcl, vb - 1.2, max(vb, 0.0) + 1e-3, xtol=1e-15, rtol=1e-15)
         return IS * math.exp((vb - ve) / VT) + IS / BR, ve
 
     ic0, ve0 = i_c(VB0)
