@@ -3,13 +3,13 @@
 - Pole derivatives: the first-order perturbation formula ds = y^H dA x / (y^H x)
   with left and right eigenvectors from scipy.linalg.eig (Greenbaum, Li &
   Overton, "First-order perturbation theory for eigenvalues and eigenvectors",
-  SIAM Review 62(2), 2020, sec. 2), and central finite differences.
+  SIAM Review 62(2), 2020), and central finite differences.
 - Closed forms: series RLC natural frequency and damping (Alexander & Sadiku,
   Fundamentals of Electric Circuits, 6th ed., sec. 8.5); first-order RC
   low-pass pole and magnitude (same book, sec. 14.2); resistor divider
-  (voltage division, same book, sec. 2.7); common-emitter gain A = -g_m R_C,
-  g_m = I_C / V_T (Sedra & Smith, Microelectronic Circuits, 7th ed., sec. 7.2;
-  from memory).
+  (voltage division, same book, sec. 2.5; section numbers from memory);
+  common-emitter gain A = -g_m R_C, g_m = I_C / V_T (Sedra & Smith,
+  Microelectronic Circuits, 7th ed., sec. 7.2; from memory).
 """
 
 from __future__ import annotations

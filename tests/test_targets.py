@@ -4,12 +4,12 @@
   -zeta omega0 +- omega0 sqrt(zeta^2 - 1) (Alexander & Sadiku, Fundamentals of
   Electric Circuits, 6th ed., sec. 8.5); its -3 dB bandwidth
   omega0 sqrt(1 - 2 zeta^2 + sqrt(4 zeta^4 - 4 zeta^2 + 2)) (Ogata, Modern
-  Control Engineering, 5th ed., sec. 8-3 on the second-order system's
+  Control Engineering, 5th ed., frequency-response chapter, the second-order system's
   bandwidth; from memory, and re-derived here with sympy).
 - First-order RC low-pass: -3 dB at 1/(2 pi R C), |H|^2 = 1/(1 + (f/fc)^2)
   (Alexander & Sadiku sec. 14.2).
 - Resistor divider: gain R2/(R1+R2), source current v/(R1+R2) (voltage
-  division, Alexander & Sadiku sec. 2.7).
+  division, Alexander & Sadiku sec. 2.5; section numbers from memory).
 - The pole-placement loss equals the squared product of the pseudo-hyperbolic
   distances |p - s| / |p + conj(s)| of the left half-plane (Garnett, Bounded
   Analytic Functions, ch. I.1, for the disc; from memory), computed here from
