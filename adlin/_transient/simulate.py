@@ -81,7 +81,7 @@ def _make_run(field: ReducedField, solver, rtol: float, max_steps: int, step_on_
     term = diffrax.ODETerm(vf)
 
     def run(z0, x_ref, u0, p, stim, ts, t_end, jumps, atol):
-        us = u0 + jax.vmap(lambda t: input_deviation(system, stim, t))(ts)
+        us = u0[None, :] + jax.vmap(lambda t: input_deviation(system, stim, t))(ts)
         if field.r:
             controller = diffrax.PIDController(rtol=rtol, atol=atol, jump_ts=jumps,
                                                step_ts=ts if step_on_grid else None)
@@ -170,14 +170,18 @@ def _failure(system: System, tr: Transient, t_end: float, rtol: float,
     alg = [system.unknowns[i] for i in range(system.n) if i not in set(dynamic_columns)]
     where = (f"stopped at t = {float(tr.reached):.6g} s of t_end = {t_end:.6g} s"
              if math.isfinite(float(tr.reached)) else "stopped before the first output time")
+    hint = (f" the algebraic unknowns ({', '.join(map(repr, alg[:6]))}) may have no solution "
+            "there (a device cut fully off, a source beyond what the circuit can follow), or a "
+            "capacitance goes through zero" if alg else
+            " the model may not be finite there, or a capacitance goes through zero")
     if code == STEP_BUDGET:
+        collapsed = int(tr.rejected_steps) > int(tr.steps) // 2
+        why = (f" Most steps were rejected, so the step size collapsed near that time:{hint}."
+               if collapsed else "")
         return (f"simulate of {system.name!r} used its whole step budget (max_steps="
                 f"{tr.max_steps}, {int(tr.rejected_steps)} steps rejected) and {where}; raise "
                 f"max_steps, loosen rtol (now {rtol:g}), shorten t_end, or look for an "
-                "oscillation far faster than the stimulus.")
-    hint = (f" the algebraic unknowns ({', '.join(map(repr, alg[:6]))}) may have no solution "
-            "there (a device cut fully off, a source beyond what the circuit can follow)"
-            if alg else " the model may not be finite there")
+                f"oscillation far faster than the stimulus.{why}")
     return (f"simulate of {system.name!r} {where}: the step size collapsed;{hint}. Check the "
             "stimulus amplitude, or pass throw=False to inspect the waveform up to that time.")
 
