@@ -92,7 +92,8 @@ def prefer_stable(compiled, op: OperatingPoint, u, p, x0) -> OperatingPoint:
         return op
     x = np.asarray(op.x)
     step = 1e-3 * (1.0 + np.max(np.abs(x)))  # small against the bias, beyond rounding
-    runs = [(POWER_UP, np.asarray(x0))]
+    # without inputs the ramp changes nothing: reuse the other program (one compile less)
+    runs = [(POWER_UP if np.size(u) else FROM_BESIDE, np.asarray(x0))]
     runs += [(FROM_BESIDE, x + sign * step * d) for sign in (1.0, -1.0)]
     tried = [op]
     for strategy, start in runs:
