@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import argparse
 import statistics
+import sys
 import time
 
 import adlin
@@ -94,6 +95,8 @@ def main() -> None:
     for case in chosen:
         for column in COLUMNS:
             results[case.name, column] = measure(case, column, args.repeat)
+            print(f"  {case.name} / {column}: {results[case.name, column][0]}", file=sys.stderr,
+                  flush=True)  # progress; compiling every strategy takes minutes
 
     outcome_rows = []
     for case in chosen:

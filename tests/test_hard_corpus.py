@@ -120,6 +120,8 @@ def test_newton_from_zero_behaves_as_documented(case):
     assert outcome == case.newton_from_zero
     if outcome == NEWTON_OTHER_STATE:
         _assert_solves(case, np.asarray(op.x))  # a genuine solution, not a stalled iterate
+        # both such cases document the other state as unstable (a saddle, an unstable focus)
+        assert _max_real_pole(system, op) > 0.0
 
 
 # --- facts the case descriptions rest on -----------------------------------------------

@@ -6,11 +6,13 @@ silicon diodes ``D0`` ... ``D15`` in series to ground, about 13 mA.
 
 Intended state: the only one -- each diode at about 0.7 V.
 
-Newton from zero: a classic failure for an undamped Newton (the first step
-puts tens of volts on each junction, and exp(40 V / V_T) overflows).  The
-damped Newton here converges from zero (junction-voltage limiting and the
-line search take about a dozen iterations), so the case is kept as a check
-that the escalation of `auto` costs nothing when it is not needed.
+Newton from zero: the diodes conduct almost nothing at zero bias, so an
+undamped first Newton step spreads nearly the whole 40 V over the string,
+about 2.5 V per junction and a computed current near 10^15 A, from which it
+must walk back.  The damped Newton here converges from zero (junction-voltage
+limiting and the line search take about a dozen iterations), so the case is
+kept as a check that the escalation of `auto` costs nothing when it is not
+needed.
 
 Diode values from memory, typical of a small-signal switching diode:
 I_S = 2.5 nA, emission coefficient 1.75.
@@ -89,7 +91,7 @@ CASE = HardCase(
     description="sixteen signal diodes in series across 40 V through 2.2 kOhm",
     build=diode_stack,
     newton_from_zero=NEWTON_CONVERGES,
-    why="undamped Newton overflows exp(v / V_T) on the first step; the damped Newton with "
+    why="an undamped first step puts about 2.5 V on every junction; the damped Newton with "
         "junction limiting converges, so auto must not escalate",
     intended="about 13 mA, each diode near 0.7 V (the only state)",
     predicate=_region,

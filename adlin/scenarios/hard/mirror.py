@@ -9,11 +9,11 @@ emitter follower ``Q3`` supplies the bases, as is usual for large ratios.
 Intended state: the only one -- I_out near 50 I_ref, every device forward
 active.
 
-Newton from zero: the base node is common to a unit device and a device 50
-times larger, so early iterates put far more current in ``Q2`` than the
-load can carry (saturation) while ``Q1`` is still off; the damped Newton with
+Newton from zero: the base node is shared by a unit device and one 50 times
+larger, so every error of the base voltage is magnified fifty-fold in the
+output current (a 60 mV error is a factor of ten); the damped Newton with
 junction limiting converges anyway (measured), so the case checks that auto
-does not escalate where it needs not.
+does not escalate where it need not.
 
 Device values from memory (small-signal NPN): I_S = 1e-16 A per unit area,
 beta 150, Early voltage 75 V.
@@ -104,8 +104,8 @@ CASE = HardCase(
     description="NPN current mirror, ratio 1:50, beta helper, 12 V",
     build=mirror,
     newton_from_zero=NEWTON_CONVERGES,
-    why="a unit device and a 50x device share one base node: early iterates drive the big "
-        "device into saturation; damped Newton copes, auto must not escalate",
+    why="a unit device and a 50x device share one base node, so base-voltage errors are "
+        "magnified fifty-fold; damped Newton copes, auto must not escalate",
     intended="I_out near 50 x 100 uA = 5 mA, Q2 forward active",
     predicate=_region,
     hand=_hand,

@@ -18,9 +18,10 @@ v_out = (V_Z + V_BE2) (1 + R1/R2), about 5.4 V.
 Why Newton from zero fails: with RSU = 47 kOhm the no-start state has gone,
 but its ghost has not -- from all-zero voltages Newton creeps along the
 half-started output (about 0.4 V) and stops at its iteration limit
-(measured).  The start-up margin is thin: from about 130 kOhm up, a second,
-stable state appears with the output stuck near 0.5 V (the stuck regulator a
-bench test would show).  Auto must return the regulating state.
+(measured).  The start-up margin is thin: with RSU = 150 kOhm a second,
+stable state exists with the output stuck near 0.5 V (the stuck regulator a
+bench test would show; the corpus test checks it).  Auto must return the
+regulating state.
 
 Device values from memory: small-signal NPN/PNP I_S = 1e-15 A, beta 150,
 Early voltage 80 V; pass device I_S = 1e-13 A, beta 80, Early voltage 100 V;
