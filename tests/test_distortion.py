@@ -28,6 +28,8 @@ import mpmath
 import numpy as np
 import pytest
 from closed_forms import VT
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 import adlin
 from adlin._trust.harmonics import coherent_spectrum
@@ -189,6 +191,24 @@ def test_predicted_degeneration_matches_series_reversion(Re):
     assert float(d.predicted_hd2[0]) == pytest.approx(a / (4 * VT * (1 + T) ** 2), rel=1e-7)
     assert float(d.predicted_hd3[0]) == pytest.approx(
         a**2 * abs(1 - 2 * T) / (24 * VT**2 * (1 + T) ** 4), rel=1e-6)
+
+
+@settings(max_examples=8, deadline=None)
+@given(Re=st.floats(min_value=5.0, max_value=500.0))
+def test_degeneration_law_over_loop_gain(Re):
+    # Sansen 1999 feedback law at any loop gain T: HD2 (1 + T)^2 and
+    # HD3 (1 + T)^4 / |1 - 2T| are those of the bare transconductor.
+    system = degenerated_stage()
+    op = adlin.steady_state(system, inputs={"v_b": 0.7146 + 1.01e-3 * Re}, params={"Re": Re},
+                            strategy="newton")
+    a = 1e-3
+    d = adlin.distortion(system, op, input="v_b", output="v_c", amplitude=a, f_hz=1e3,
+                         measure=False)
+    _, _, T = _degeneration_reference(system, op, a)
+    assert float(d.predicted_hd2[0]) * (1 + T) ** 2 == pytest.approx(a / (4 * VT), rel=1e-7)
+    if abs(1 - 2 * T) > 1e-3:
+        assert float(d.predicted_hd3[0]) * (1 + T) ** 4 / abs(1 - 2 * T) == pytest.approx(
+            a**2 / (24 * VT**2), rel=1e-5)
 
 
 def test_prediction_scales_with_amplitude():
@@ -448,6 +468,17 @@ def test_measured_degeneration_dae():
     assert rel2[0] < 1e-3 and rel3[0] < 1e-2
     assert rel2[1] / rel2[0] == pytest.approx(4.0, rel=0.25)
     assert float(d.period_change[1]) < 1e-6
+
+
+@pytest.mark.slow
+def test_capped_settling_is_reported():
+    # At 2 MHz the diode-RC node needs 10 periods to settle 25 time constants;
+    # a cap of 5 periods (4 measured) leaves 1 and the result must say so.
+    system, op = _op("diode")
+    d = adlin.distortion(system, op, input="v_s", output="v", amplitude=2e-2, f_hz=2e6,
+                         options=adlin.DistortionOptions(max_periods=5))
+    assert d.settings.periods_discarded == 1 and d.settings.periods_simulated == 5
+    assert any("max_periods=5" in n for n in d.notes)
 
 
 def test_unstable_operating_point_is_refused():
