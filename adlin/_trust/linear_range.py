@@ -94,6 +94,17 @@ def _timing(lin, kind: str, f_hz, t_end, n_points, notes: list[str]):
     return (f_hz if kind == "sine" else None), t_end, int(n_points)
 
 
+def _default_amplitude_max(system: System, input: str, u0: float) -> float:
+    """Ten times the input's bias; with no bias, one unit of its natural scale.
+
+    The natural scale is 1 V for a voltage and 1 mA for a current (a bias
+    current of microamps must not be tried at amperes).
+    """
+    if u0 != 0.0:
+        return 10.0 * abs(u0)
+    return {"V": 1.0, "A": 1e-3}.get(system.unit(input), 1.0)
+
+
 def linear_range(
     system: System,
     op=None,
@@ -128,8 +139,10 @@ def linear_range(
     - `t_end`: run length (s); default 10 slowest time constants (steps), or
       the longer of that and 3 periods (sines).
     - `amplitude_max`: the largest amplitude tried (input units); default
-      max(1, 10 |bias of the input|).  `amplitude_min`: the smallest; default
-      amplitude_max * 1e-6.
+      10 times the input's bias, or with a zero bias 1 V (voltage inputs),
+      1 mA (current inputs), 1 (others).  `amplitude_min`: the smallest; default
+      amplitude_max * 1e-6, raised where the solver's own error (about
+      rtol times the output's bias) would exceed 1 % of the tolerance.
     - `growth`: ratio of the first ladder of amplitudes (> 1).
     - `precision`: the limits are bracketed to a ratio of 1 + precision.
     - `n_points`: samples of the output grid (default 401 for steps, 100 per
@@ -167,10 +180,10 @@ def linear_range(
     notes: list[str] = []
     f_hz, t_end, n_points = _timing(lin, kind, f_hz, t_end, n_points, notes)
     u0 = float(np.asarray(op.u)[system.inputs.index(input)])
-    a_max = max(1.0, 10 * abs(u0)) if amplitude_max is None else _positive("amplitude_max",
-                                                                           amplitude_max)
-    a_min = a_max * 1e-6 if amplitude_min is None else _positive("amplitude_min", amplitude_min,
-                                                                 below=a_max)
+    a_max = (_default_amplitude_max(system, input, u0) if amplitude_max is None
+             else _positive("amplitude_max", amplitude_max))
+    if amplitude_min is not None:
+        a_min = _positive("amplitude_min", amplitude_min, below=a_max)
 
     unit = Step(input, 1.0) if kind == "step" else Sine(input, 1.0, f_hz)
     ts = np.linspace(0.0, t_end, n_points)
@@ -182,6 +195,12 @@ def linear_range(
                             "model, so there is no swing to measure an error against; pick an "
                             "output that the input drives.")
     y0 = float(np.asarray(op.y)[col])
+    if amplitude_min is None:
+        # The transient's own error is about rtol |y0|: start where that is at most
+        # 1/100 of the tolerated error, so the smallest amplitudes measure the
+        # circuit, not the solver.
+        floor = 100.0 * rtol * abs(y0) / (tol * swing1)
+        a_min = min(max(a_max * 1e-6, floor), a_max / growth)
 
     def run(a):
         tr = simulate(system, unit.scaled(a), t_end, op=op, t=ts, rtol=rtol,

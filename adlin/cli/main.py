@@ -5,6 +5,8 @@
                            [--input NAME --output NAME] [--states search|skip]
                            [--plots DIR] [--json]
     adlin track MODEL.py --param NAME --from A --to B [--show NAME] [--plots DIR] [--json]
+    adlin check MODEL.py --input NAME --output NAME [--tol 1%] [--kind step|sine|both]
+                         [--plots DIR] [--json]
 
 Errors caused by the model or the command line (every `adlin.AdlinError`, a
 missing model file, a malformed ``NAME=VALUE``) print one sentence to
@@ -190,6 +192,7 @@ class _Parser(argparse.ArgumentParser):
 
 
 def build_parser() -> argparse.ArgumentParser:
+    from .check import add_check_command
     from .track import add_track_command
 
     base = argparse.ArgumentParser(add_help=False)
@@ -273,6 +276,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     analyze.set_defaults(func=cmd_analyze)
     add_track_command(sub, base)
+    add_check_command(sub, common)
     return parser
 
 
