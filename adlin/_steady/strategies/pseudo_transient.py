@@ -198,7 +198,9 @@ class PseudoTransient(AbstractStrategy):
             delta = jnp.where(reject, s["delta"] / 4.0,
                               jnp.where(s["k"] > 0, s["delta"] * growth, s["delta"]))
             delta = jnp.minimum(delta, self.max_step)
-            underflow = delta < self.min_step
+            # only rejections shrink delta towards underflow; the stability cap below
+            # may hold it small for a while without that being a failure
+            underflow = reject & (delta < self.min_step)
             if storage:
                 V = mass(x)
                 cap = jnp.where(finite, stable_cap(J, V), jnp.inf)
