@@ -30,21 +30,9 @@ import adlin
 from adlin.scenarios import hard
 from adlin.scenarios.hard import CORPUS, NEWTON_CONVERGES, NEWTON_FAILS, NEWTON_OTHER_STATE
 
-# Cases whose intended state needs auto to leave an unstable state Newton found;
-# today's prefer_stable cannot (see /work/notes/bug-prefer-stable.md).
-_PREFER_STABLE_BUG = "prefer_stable cannot leave the unstable state (notes/bug-prefer-stable.md)"
-KNOWN_FAILURES = {"preset_latch": _PREFER_STABLE_BUG, "ptat_cell": _PREFER_STABLE_BUG}
-
 
 def _params(case):
     marks = [pytest.mark.slow] if case.slow else []
-    return pytest.param(case, id=case.name, marks=marks)
-
-
-def _auto_params(case):
-    marks = [pytest.mark.slow] if case.slow else []
-    if case.name in KNOWN_FAILURES:
-        marks.append(pytest.mark.xfail(strict=True, reason=KNOWN_FAILURES[case.name]))
     return pytest.param(case, id=case.name, marks=marks)
 
 
@@ -91,7 +79,7 @@ def _close(x, ref) -> np.ndarray:
     return np.abs(np.asarray(x) - ref) <= 1e-6 + 1e-7 * np.abs(ref)
 
 
-@pytest.mark.parametrize("case", [_auto_params(c) for c in CORPUS])
+@pytest.mark.parametrize("case", [_params(c) for c in CORPUS])
 def test_auto_finds_the_intended_state(case, record_property):
     system = case.build()
     op = adlin.steady_state(system, case.inputs, case.params, strategy=case.strategy,

@@ -110,4 +110,5 @@ CASE = HardCase(
     predicate=_region,
     hand=_hand,
     reference_guess=_guess(),
+    slow=True,
 )
