@@ -14,7 +14,9 @@ import jax.numpy as jnp
 import numpy as np
 
 from ._checks import analyze
+from ._derivatives import derivatives_of
 from ._linear.model import LinearModel
+from ._steady.implicit import newton_update
 from ._steady.newton import JunctionTable, NewtonOptions, newton_solve
 from ._steady.operating_point import OperatingPoint
 from ._structure import Structure
@@ -47,6 +49,7 @@ class CompiledSystem:
     def __init__(self, system: System, options: NewtonOptions | None = None):
         self.system = system
         self.options = options or NewtonOptions()
+        self.derivatives = derivatives_of(system)
         # One jitted program gives the whole local model (f, E, A, B, C, D, y) at a
         # point: the structural checks, the finite check at a guess and
         # linearization all reuse it, so it is compiled once.
@@ -62,17 +65,19 @@ class CompiledSystem:
     def _solve(self, u, p, x0) -> OperatingPoint:
         """Steady state from guess x0: Newton, then one implicit-function step."""
         s = self.system
-        res = newton_solve(lambda x: s.f(x, u, p), x0, self.junctions, self.options)
+        res = newton_solve(lambda x: s.f(x, u, p), x0, self.junctions, self.options,
+                           lambda x: self.derivatives.current_x(x, u, p))
         converged = res.status == 0
         # x is differentiable in (u, p) through the implicit function theorem:
         # x_out = x* - J^-1 f(x*, u, p) with x* and J = df/dx(x*) held constant
         # is the final Newton update (x* passed the convergence test), and its
-        # derivative is exactly dx/dp = -J^-1 df/dp.
+        # derivative is exactly dx/dp = -J^-1 df/dp.  The solver already holds
+        # that update, so values need no second solve (`newton_update`).
         xs = jax.lax.stop_gradient(res.x)
         J = jax.lax.stop_gradient(res.jacobian)
-        f_star = s.f(xs, u, p)
-        step = jnp.linalg.solve(J, f_star)
-        x = jnp.where(converged & jnp.all(jnp.isfinite(step)), xs - step, xs)
+        step = jax.lax.stop_gradient(res.step)
+        x = newton_update(xs, step, J, s.f(xs, u, p))
+        x = jnp.where(converged & jnp.all(jnp.isfinite(step)), x, xs)
         return OperatingPoint(
             x=x,
             u=u,
@@ -82,7 +87,7 @@ class CompiledSystem:
             status=res.status,
             iterations=res.iterations,
             evaluations=res.evaluations,
-            residual_norm=jnp.max(jnp.abs(jax.lax.stop_gradient(f_star))),
+            residual_norm=jnp.max(jnp.abs(jax.lax.stop_gradient(res.residual))),
             unknown_names=s.unknowns,
             input_names=s.inputs,
             output_names=s.outputs,
@@ -96,17 +101,14 @@ class CompiledSystem:
         s = self.system
         n = s.n
 
-        def with_value(fn):
-            def split(z):
-                y = fn(z[:n], z[n:], p)
-                return y, y
+        def split(z):
+            y = s.g(z[:n], z[n:], p)
+            return y, y
 
-            return jax.jacfwd(split, has_aux=True)(jnp.concatenate([x, u]))
-
-        Jf, f = with_value(s.f)
-        Jg, y = with_value(s.g)
-        E = jax.jacfwd(s.q)(x, p)
-        return f, E, -Jf[:, :n], -Jf[:, n:], Jg[:, :n], Jg[:, n:], y
+        Jg, y = jax.jacfwd(split, has_aux=True)(jnp.concatenate([x, u]))
+        f, dfdx, dfdu = self.derivatives.current(x, u, p)
+        _, E = self.derivatives.charge(x, p)
+        return f, E, -dfdx, -dfdu, Jg[:, :n], Jg[:, n:], y
 
     def matrices(self, x, u, p):
         """(E, A, B, C, D) at a point (jitted through `local`)."""
