@@ -145,6 +145,7 @@ def test_element_jacobians_emit_no_scatter():
     assert "scatter" not in str(jaxpr)
 
 
+@pytest.mark.slow
 def test_steady_state_gradient_matches_finite_differences():
     # d v_out / d R_load through the reused final Newton update (custom JVP).
     system = _system("ldo")
