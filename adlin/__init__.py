@@ -11,6 +11,7 @@ from ._errors import (
     SteadyStateError as SteadyStateError,
 )
 from . import devices as devices
+from . import strategies as strategies
 from ._system import Junction as Junction, System as System
 from ._circuit import Circuit as Circuit, SmallSignal as SmallSignal
 
@@ -23,3 +24,21 @@ from ._linear.pole_table import RootTable as RootTable
 from ._steady.newton import NewtonOptions as NewtonOptions
 from ._steady.operating_point import OperatingPoint as OperatingPoint
 from ._steady.solve import steady_state as steady_state
+from ._equilibria.find import steady_states as steady_states, SteadyStates as SteadyStates
+from ._equilibria.find import SteadyStatesOptions as SteadyStatesOptions
+from ._continuation.branch import Branch as Branch
+from ._continuation.options import TrackOptions as TrackOptions
+from ._continuation.track import track as track
+from . import stimuli as stimuli
+from ._transient import Transient as Transient, simulate as simulate
+from . import targets as targets
+from . import quantities as quantities
+from ._design.sensitivities import sensitivities as sensitivities
+from ._design.sensitivity_table import Sensitivities as Sensitivities
+from ._trust.distortion import distortion as distortion
+from ._trust.distortion_options import DistortionOptions as DistortionOptions
+from ._trust.distortion_result import Distortion as Distortion
+from ._trust.linear_response import linear_response as linear_response
+from ._trust.compare import Comparison as Comparison, compare as compare
+from ._trust.linear_range import linear_range as linear_range
+from ._trust.range_result import LinearRange as LinearRange

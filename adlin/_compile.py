@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import functools
 
+import equinox as eqx
 import jax
 import jax.numpy as jnp
 import numpy as np
@@ -19,6 +20,8 @@ from ._linear.model import LinearModel
 from ._steady.implicit import newton_update
 from ._steady.newton import JunctionTable, NewtonOptions, newton_solve
 from ._steady.operating_point import OperatingPoint
+from ._steady.strategies import AbstractStrategy, Candidate, Newton, Problem
+from ._steady.strategies.reasons import N_STRATEGIES, NEWTON, NOT_TRIED, POLISH_FAILED
 from ._structure import Structure
 from ._system import System
 
@@ -32,6 +35,12 @@ def _junction_table(system: System) -> JunctionTable:
         vt=np.array([j.thermal_voltage for j in js], dtype=float),
         vcrit=np.array([j.critical_voltage for j in js], dtype=float),
     )
+
+
+def _node_mask(system: System) -> np.ndarray:
+    """Unknowns that are node voltages (unit "V"); all unknowns if there are none."""
+    mask = np.array([system.unit(k) == "V" for k in system.unknowns], dtype=bool)
+    return mask if mask.any() else np.ones(system.n, dtype=bool)
 
 
 class CompiledSystem:
@@ -58,42 +67,121 @@ class CompiledSystem:
         self.junctions = _junction_table(system)
         self._left = np.asarray(self.structure.left)
         self._right = np.asarray(self.structure.right)
+        self.node_mask = _node_mask(system)
         self.solve = jax.jit(self._solve)
+        self._strategy_solves: dict[AbstractStrategy, object] = {}
         self.poles = jax.jit(self._poles)
 
     # -- pure functions (jitted in __init__) -----------------------------
     def _solve(self, u, p, x0) -> OperatingPoint:
-        """Steady state from guess x0: Newton, then one implicit-function step."""
+        """Steady state from guess x0: plain Newton, then one implicit-function step."""
         s = self.system
-        res = newton_solve(lambda x: s.f(x, u, p), x0, self.junctions, self.options,
-                           lambda x: self.derivatives.current_x(x, u, p))
-        converged = res.status == 0
-        # x is differentiable in (u, p) through the implicit function theorem:
-        # x_out = x* - J^-1 f(x*, u, p) with x* and J = df/dx(x*) held constant
-        # is the final Newton update (x* passed the convergence test), and its
-        # derivative is exactly dx/dp = -J^-1 df/dp.  The solver already holds
-        # that update, so values need no second solve (`newton_update`).
-        xs = jax.lax.stop_gradient(res.x)
-        J = jax.lax.stop_gradient(res.jacobian)
-        step = jax.lax.stop_gradient(res.step)
-        x = newton_update(xs, step, J, s.f(xs, u, p))
-        x = jnp.where(converged & jnp.all(jnp.isfinite(step)), x, xs)
+        res = newton_solve(lambda x: s.f(x, u, p), jax.lax.stop_gradient(x0), self.junctions,
+                           self.options, value_and_jacobian=self._jacobian(u, p))
+        slot = jnp.arange(N_STRATEGIES) == NEWTON
+        record = Candidate(
+            x=res.x, reason=res.status, evaluations=res.evaluations, steps=res.iterations,
+            progress=jnp.asarray(1.0), code=jnp.asarray(NEWTON), polished=res.status == 0,
+            jacobian=res.jacobian,
+            attempts=jnp.where(slot, res.status, NOT_TRIED),
+            attempt_evaluations=jnp.where(slot, res.evaluations, 0),
+            attempt_steps=jnp.where(slot, res.iterations, 0),
+            attempt_progress=jnp.where(slot, 1.0, 0.0),
+        )
+        return self._finish(u, p, res.x, res.jacobian, res.status, res.iterations,
+                            res.evaluations, record, step=res.step, residual=res.residual)
+
+    def problem(self, u, p) -> Problem:
+        """The `Problem` strategies search, at stop-gradient (u, p): derivatives come
+        from the implicit-function step in `_finish`, never from the search path."""
+        s = self.system
+        return Problem(
+            f=s.f, q=s.q, u=jax.lax.stop_gradient(u), p=jax.lax.stop_gradient(p),
+            node_mask=self.node_mask, input_names=s.inputs, param_names=s.param_names,
+            junctions=self.junctions, options=self.options,
+        )
+
+    def _solve_strategy(self, strategy: AbstractStrategy, u, p, x0) -> OperatingPoint:
+        """Search with `strategy`, polish its end point by Newton, differentiate by IFT."""
+        s = self.system
+        cand = strategy.search(self.problem(u, p), jax.lax.stop_gradient(x0))
+        # Newton from the search's end point with the user's tolerances; skipped
+        # (no iteration) where the search failed or already ended on a Newton test.
+        needs = (cand.reason == 0) & ~cand.polished
+        pol = newton_solve(lambda x: s.f(x, u, p), cand.x, self.junctions, self.options,
+                           active=needs, value_and_jacobian=self._jacobian(u, p))
+        polish_failed = needs & (pol.status != 0)
+        status = jnp.where(needs, jnp.where(polish_failed, POLISH_FAILED, 0), cand.reason)
+        xs = jnp.where(needs, pol.x, cand.x)
+        J = jnp.where(needs, pol.jacobian, cand.jacobian)
+        slot = (jnp.arange(N_STRATEGIES) == cand.code) & polish_failed
+        cand = eqx.tree_at(lambda c: c.attempts, cand,
+                           jnp.where(slot, POLISH_FAILED, cand.attempts))
+        iterations = cand.steps + jnp.where(needs, pol.iterations, 0)
+        evaluations = cand.evaluations + pol.evaluations
+        return self._finish(u, p, xs, J, status, iterations, evaluations, cand)
+
+    def _jacobian(self, u, p):
+        """x -> (f, df/dx) for Newton: the cheapest exact Jacobian (`adlin._derivatives`)."""
+        return lambda x: self.derivatives.current_x(x, u, p)
+
+    def _finish(self, u, p, xs, J, status, iterations, evaluations, record: Candidate,
+                step=None, residual=None):
+        """The OperatingPoint at a solved xs, with x differentiable in (u, p).
+
+        x_out = x* - J^-1 f(x*, u, p) with x* and J = df/dx(x*) held constant is
+        the final Newton update (x* passed the convergence test), and its
+        derivative is exactly dx/dp = -J^-1 df/dp (implicit function theorem),
+        whatever path found x*.  When the solver hands over that update
+        (`step`, with f at x* as `residual`), values need no second solve
+        (`newton_update`).
+        """
+        s = self.system
+        converged = status == 0
+        xs = jax.lax.stop_gradient(xs)
+        J = jax.lax.stop_gradient(J)
+        f_star = s.f(xs, u, p)
+        if step is None:
+            step = -jnp.linalg.solve(J, f_star)
+            residual = f_star
+        step = jax.lax.stop_gradient(step)
+        x = jnp.where(converged & jnp.all(jnp.isfinite(step)),
+                      newton_update(xs, step, J, f_star), xs)
         return OperatingPoint(
             x=x,
             u=u,
             p=p,
             y=s.g(x, u, p),
             converged=converged,
-            status=res.status,
-            iterations=res.iterations,
-            evaluations=res.evaluations,
-            residual_norm=jnp.max(jnp.abs(jax.lax.stop_gradient(res.residual))),
+            status=status,
+            iterations=iterations,
+            evaluations=evaluations,
+            residual_norm=jnp.max(jnp.abs(jax.lax.stop_gradient(residual))),
+            strategy=record.code,
+            attempts=record.attempts,
+            attempt_evaluations=record.attempt_evaluations,
+            attempt_steps=record.attempt_steps,
+            attempt_progress=record.attempt_progress,
             unknown_names=s.unknowns,
             input_names=s.inputs,
             output_names=s.outputs,
             param_names=s.param_names,
-            method="newton",
         )
+
+    def solve_with(self, strategy: AbstractStrategy):
+        """The jitted solve (u, p, x0) -> OperatingPoint for one strategy, built once.
+
+        `Newton()` gives `solve` itself (the same compiled program).  Other
+        strategies search, then polish by Newton, then take the implicit-function
+        step, so the derivatives are those of `solve`.
+        """
+        if isinstance(strategy, Newton):
+            return self.solve
+        fn = self._strategy_solves.get(strategy)
+        if fn is None:
+            fn = jax.jit(functools.partial(self._solve_strategy, strategy))
+            self._strategy_solves[strategy] = fn
+        return fn
 
     def _local(self, x, u, p):
         # Each model function is traced once: derivatives with respect to the

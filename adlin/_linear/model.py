@@ -213,6 +213,16 @@ class LinearModel(eqx.Module):
         t = np.atleast_1d(np.asarray(t_s, dtype=float)) if _concrete(t_s) else jnp.atleast_1d(t_s)
         return _step(A, B, C, D, t)
 
+    def response(self, stimulus, t_s, *, method: str = "exact") -> jax.Array:
+        """Output deviations (len(t_s), outputs) driven by an `adlin.stimuli` stimulus.
+
+        Starts from rest at t = 0; exact for steps, pulses, tables and sines.
+        See `adlin.linear_response` for the arguments and what is exact.
+        """
+        from .._trust.linear_response import linear_response
+
+        return linear_response(self, stimulus, t_s, method=method)
+
     # -- tables and exports ------------------------------------------------------
     def pole_table(self) -> RootTable:
         """Poles with frequency (Hz), damping ratio, Q and time constant."""

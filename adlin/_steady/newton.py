@@ -25,7 +25,6 @@ s_i = sum_j |J_ij| (|x_j| + atol) is the size of the terms in equation i.
 from __future__ import annotations
 
 from collections.abc import Callable
-
 from dataclasses import dataclass
 
 import equinox as eqx
@@ -134,9 +133,14 @@ def newton_solve(
     x0: jax.Array,
     junctions: JunctionTable,
     opts: NewtonOptions,
+    active=True,
     value_and_jacobian: Callable[[jax.Array], tuple[jax.Array, jax.Array]] | None = None,
 ) -> NewtonResult:
     """Solve fun(x) = 0 from x0. Pure JAX; never raises on non-convergence.
+
+    `active` (a bool, possibly traced) switches the solve off for a lane: the
+    loop then runs no iteration and reports MAX_ITERATIONS at x0.  Strategy
+    chains use it so that, under vmap, lanes already solved cost nothing.
 
     Convergence is declared at an iterate x whose Newton update and residual
     are both within tolerance; that x, with f and df/dx there, is returned
@@ -222,7 +226,7 @@ def newton_solve(
         "J": jnp.zeros((n, n), x0.dtype),
         "dx": jnp.zeros_like(x0),
         "k": jnp.asarray(0),
-        "status": jnp.asarray(-1),
+        "status": jnp.where(active, -1, MAX_ITERATIONS),
         "evals": jnp.asarray(0),
         "upd": jnp.asarray(jnp.inf, dtype=x0.dtype),
         "res": jnp.asarray(jnp.inf, dtype=x0.dtype),

@@ -8,7 +8,7 @@ import numpy as np
 from jaxtyping import Array, Bool, Float, Int
 
 from .._errors import ParameterError, did_you_mean
-from .newton import STATUS_MESSAGES
+from .strategies.reasons import REASON_MESSAGES, STRATEGY_NAMES, describe
 
 
 class OperatingPoint(eqx.Module):
@@ -20,12 +20,21 @@ class OperatingPoint(eqx.Module):
 
     - `x`: unknowns (n,).  `u`: inputs.  `p`: parameters.  `y`: outputs.
     - `converged`: True when both the update and the scaled residual met the
-      tolerances.  `status`: 0 converged, 1 iteration limit, 2 singular
-      Jacobian, 3 non-finite model value (see `message`).
-    - `iterations`, `evaluations`: Newton iterations and residual evaluations.
+      tolerances.  `status`: 0 converged, 1 iteration/step limit, 2 singular
+      Jacobian, 3 non-finite model value, 4-7 continuation failures (see
+      `message` and `adlin._steady.strategies.reasons`).
+    - `iterations`: Newton iterations, plus the steps of the strategy that
+      found x when it was not plain Newton.
+    - `evaluations`: residual evaluations over everything tried (a Jacobian
+      counts as n).
     - `residual_norm`: max |f_i| at the converged iterate, before the final
       Newton update that gives x, in the equations' units (A for nodes).
-    - `method`: the strategy that produced x.
+    - `strategy`: code of the strategy that produced x (see `method`; on
+      failure, the first one tried).
+    - `attempts`: one reason code per strategy (order of
+      `adlin.strategies.STRATEGY_NAMES`), -1 where not tried, 0 where it
+      converged; `attempt_evaluations`, `attempt_steps`, `attempt_progress`
+      give what each cost and how far it got (see `history`).
 
     `op["v_out"]` reads an unknown, output, input or parameter by name.
     """
@@ -39,11 +48,15 @@ class OperatingPoint(eqx.Module):
     iterations: Int[Array, ""]
     evaluations: Int[Array, ""]
     residual_norm: Float[Array, ""]
+    strategy: Int[Array, ""]
+    attempts: Int[Array, " s"]
+    attempt_evaluations: Int[Array, " s"]
+    attempt_steps: Int[Array, " s"]
+    attempt_progress: Float[Array, " s"]
     unknown_names: tuple[str, ...] = eqx.field(static=True)
     input_names: tuple[str, ...] = eqx.field(static=True)
     output_names: tuple[str, ...] = eqx.field(static=True)
     param_names: tuple[str, ...] = eqx.field(static=True)
-    method: str = eqx.field(static=True, default="newton")
 
     def __getitem__(self, name: str):
         for names, values in (
@@ -57,7 +70,8 @@ class OperatingPoint(eqx.Module):
                     return np.asarray(values)[..., names.index(name)]  # no device op
                 return values[..., names.index(name)]
         valid = self.unknown_names + self.output_names + self.input_names + self.param_names
-        raise ParameterError(f"operating point has no quantity {name!r}: {did_you_mean(name, valid)}.")
+        raise ParameterError(
+            f"operating point has no quantity {name!r}: {did_you_mean(name, valid)}.")
 
     def __contains__(self, name: str) -> bool:
         return name in (self.unknown_names + self.output_names + self.input_names
@@ -74,10 +88,48 @@ class OperatingPoint(eqx.Module):
     def values(self) -> dict[str, float]:
         """Unknowns and outputs by name, as Python floats (un-batched results only)."""
         out = {k: float(v) for k, v in zip(self.unknown_names, np.asarray(self.x), strict=True)}
-        out.update({k: float(v) for k, v in zip(self.output_names, np.asarray(self.y), strict=True)})
+        out.update({k: float(v)
+                    for k, v in zip(self.output_names, np.asarray(self.y), strict=True)})
         return out
+
+    @property
+    def method(self) -> str:
+        """Name of the strategy that produced x ("newton", "source", ...).
+
+        For a batch, the names in use joined by "/" (e.g. "newton/homotopy").
+        """
+        codes = np.unique(np.atleast_1d(np.asarray(self.strategy)))
+        return "/".join(STRATEGY_NAMES[int(c)] for c in codes)
 
     @property
     def message(self) -> str:
         codes = np.atleast_1d(np.asarray(self.status))
-        return "; ".join(sorted({STATUS_MESSAGES[int(c)] for c in codes}))
+        return "; ".join(sorted({REASON_MESSAGES.get(int(c), f"status {int(c)}")
+                                 for c in codes}))
+
+    @property
+    def history(self) -> list[tuple[str, str, int]]:
+        """What was tried, in the order of the strategy codes (un-batched results only).
+
+        **Returns:** a list of (strategy name, outcome sentence, residual
+        evaluations) for every strategy that ran.
+        """
+        attempts = np.asarray(self.attempts)
+        if attempts.ndim != 1:
+            raise ValueError("history is for one operating point; index the batch first "
+                             "(jax.tree_util.tree_map(lambda a: a[i], ops)).")
+        out = []
+        for code, reason in enumerate(attempts.tolist()):
+            if reason < 0:
+                continue
+            out.append((STRATEGY_NAMES[code],
+                        describe(code, reason, float(np.asarray(self.attempt_progress)[code]),
+                                 int(np.asarray(self.attempt_steps)[code])),
+                        int(np.asarray(self.attempt_evaluations)[code])))
+        return out
+
+    @property
+    def attempts_message(self) -> str:
+        """One line per strategy tried: "source: step size underflow at source scale 0.37
+        (412 evaluations)"."""
+        return "; ".join(f"{name}: {what} ({ev} evaluations)" for name, what, ev in self.history)

@@ -1,8 +1,12 @@
 """The ``adlin`` command: bias point, small-signal model and report of a circuit.
 
-    adlin demo [--plots DIR] [--json] [--set NAME=VALUE ...]
+    adlin demo [--plots DIR] [--json] [--set NAME=VALUE ...] [--states search|skip]
     adlin analyze MODEL.py [--model NAME] [--set NAME=VALUE ...] [--guess NAME=VALUE ...]
-                           [--input NAME --output NAME] [--plots DIR] [--json]
+                           [--input NAME --output NAME] [--states search|skip]
+                           [--plots DIR] [--json]
+    adlin track MODEL.py --param NAME --from A --to B [--show NAME] [--plots DIR] [--json]
+    adlin check MODEL.py --input NAME --output NAME [--tol 1%] [--kind step|sine|both]
+                         [--plots DIR] [--json]
 
 Errors caused by the model or the command line (every `adlin.AdlinError`, a
 missing model file, a malformed ``NAME=VALUE``) print one sentence to
@@ -18,34 +22,25 @@ value turns the cache off), else ``$XDG_CACHE_HOME/adlin/jax`` or
 from __future__ import annotations
 
 import argparse
-import math
 import os
-import re
 import sys
 from collections.abc import Sequence
 from pathlib import Path
 
+from .options import (
+    CommandError,
+    _check_choice,
+    parse_assignments,
+    parse_number,
+    split_settings,
+)
+
+# parse_* and CommandError are re-exported: tests and subcommands import them from here
+__all__ = ["CommandError", "build_parser", "main", "parse_assignments", "parse_number"]
+
 PROG = "adlin"
 EXIT_USER = 2
 EXIT_INTERNAL = 1
-
-_PREFIX = {
-    "T": 1e12,
-    "G": 1e9,
-    "M": 1e6,
-    "k": 1e3,
-    "m": 1e-3,
-    "u": 1e-6,
-    "µ": 1e-6,
-    "n": 1e-9,
-    "p": 1e-12,
-    "f": 1e-15,
-}
-_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([TGMkmuµnpf]?)\s*$")
-
-
-class CommandError(Exception):
-    """A malformed command line that argparse itself does not catch."""
 
 
 # -- persistent compilation cache ---------------------------------------------------
@@ -78,79 +73,6 @@ def configure_cache() -> Path | None:
     jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.0)
     jax.config.update("jax_persistent_cache_min_entry_size_bytes", -1)
     return path
-
-
-# -- NAME=VALUE ---------------------------------------------------------------------
-def parse_number(text: str) -> float:
-    """A float, optionally with an SI prefix: '4.7u' -> 4.7e-6, '10k' -> 1e4.
-
-    **Raises:** `ValueError` for anything else (including 'inf' and 'nan').
-    """
-    m = _NUMBER.match(text)
-    if not m:
-        raise ValueError(text)
-    value = float(m.group(1)) * _PREFIX.get(m.group(2), 1.0)
-    if not math.isfinite(value):
-        raise ValueError(text)
-    return value
-
-
-def parse_assignments(items: Sequence[str] | None, option: str) -> dict[str, float]:
-    """``["R1=10k", "v_in=0.6"]`` -> ``{"R1": 1e4, "v_in": 0.6}``.
-
-    **Raises:** `CommandError` naming the malformed item.
-    """
-    out: dict[str, float] = {}
-    for item in items or ():
-        name, sep, value = item.partition("=")
-        name = name.strip()
-        if not sep or not name:
-            raise CommandError(
-                f"{option} {item!r} is not NAME=VALUE; write it like "
-                f"{option} R1=4.7k (SI prefixes T G M k m u n p f allowed)."
-            )
-        try:
-            out[name] = parse_number(value)
-        except ValueError:
-            raise CommandError(
-                f"{option} {item!r}: {value.strip()!r} is not a finite number; "
-                "write e.g. 4.7e3, 4.7k or 0.6."
-            ) from None
-    return out
-
-
-def split_settings(system, settings: dict[str, float]) -> tuple[dict[str, float], dict[str, float]]:
-    """Route ``--set`` values to the System's inputs and parameters by name.
-
-    **Raises:** `ParameterError` for a name that is neither.
-    """
-    from .._errors import ParameterError, did_you_mean
-
-    inputs, params = {}, {}
-    valid = list(system.inputs) + list(system.param_names)
-    for name, value in settings.items():
-        if name in system.inputs:
-            inputs[name] = value
-        elif name in system.param_names:
-            params[name] = value
-        else:
-            hint = did_you_mean(name, valid)
-            raise ParameterError(
-                f"--set {name}=...: {system.name!r} has no input or parameter "
-                f"{name!r}; {hint}{'' if hint.endswith('?') else '.'}"
-            )
-    return inputs, params
-
-
-def _check_choice(option: str, name: str | None, valid: Sequence[str], model: str) -> None:
-    from .._errors import ParameterError, did_you_mean
-
-    if name is not None and name not in valid:
-        hint = did_you_mean(name, valid)
-        raise ParameterError(
-            f"{option} {name}: {model!r} has no such {option[2:]}; "
-            f"{hint}{'' if hint.endswith('?') else '.'}"
-        )
 
 
 # -- the commands -------------------------------------------------------------------
@@ -205,6 +127,8 @@ def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out
     summary = report.summarize(
         system, op, model, devices=devices, input=args.input, output=args.output, notes=notes
     )
+    if args.states == "search":
+        summary.states = search_states(system, inputs, params, op)
     figures: list[Path] = []
     if args.plots:
         from ..report.figures import write_figures
@@ -235,6 +159,16 @@ def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out
     return 0
 
 
+def search_states(system, inputs, params, op):
+    """The other steady states at these values (source ramp + deflation from `op`)."""
+    from .._equilibria.find import steady_states
+    from ..report.states import summarize_states
+
+    states = steady_states(system, inputs, params, guesses=(op,),
+                           ramp=bool(system.inputs))
+    return summarize_states(system, states, op)
+
+
 def cmd_demo(args, out=None) -> int:
     from ..scenarios import sensor_ldo
 
@@ -258,25 +192,29 @@ class _Parser(argparse.ArgumentParser):
 
 
 def build_parser() -> argparse.ArgumentParser:
-    common = argparse.ArgumentParser(add_help=False)
-    common.add_argument(
+    from .check import add_check_command
+    from .track import add_track_command
+
+    base = argparse.ArgumentParser(add_help=False)
+    base.add_argument(
         "--debug",
         action="store_true",
         default=argparse.SUPPRESS,
         help="show full tracebacks on errors",
     )
-    common.add_argument(
+    base.add_argument(
         "--set",
         action="append",
         metavar="NAME=VALUE",
         help="override an input or parameter (repeatable; SI prefixes allowed, e.g. R1=4.7k)",
     )
-    common.add_argument(
+    base.add_argument(
         "--json", action="store_true", help="print the report as JSON instead of tables"
     )
-    common.add_argument(
+    base.add_argument(
         "--plots", metavar="DIR", help="write bode.png and poles_zeros.png into DIR"
     )
+    common = argparse.ArgumentParser(add_help=False, parents=[base])
     common.add_argument(
         "--input", metavar="NAME", help="input for the zero table and the Bode plot (default: all)"
     )
@@ -307,6 +245,11 @@ def build_parser() -> argparse.ArgumentParser:
         "zeros, DC gains, normalized model and loop gain of "
         "the built-in sensor-node LDO (Li-ion cell to 1.8 V).",
     )
+    demo.add_argument(
+        "--states", choices=("search", "skip"), default="skip",
+        help="search for other steady states (source ramp and deflation); default skip: the "
+        "regulator has one by design",
+    )
     demo.set_defaults(func=cmd_demo, guess=None)
     analyze = sub.add_parser(
         "analyze",
@@ -326,7 +269,14 @@ def build_parser() -> argparse.ArgumentParser:
         metavar="NAME=VALUE",
         help="starting value of an unknown for the bias-point solve (repeatable)",
     )
+    analyze.add_argument(
+        "--states", choices=("search", "skip"), default="search",
+        help="search for other steady states and report which one is used (default search; "
+        "skip saves the extra compile time)",
+    )
     analyze.set_defaults(func=cmd_analyze)
+    add_track_command(sub, base)
+    add_check_command(sub, common)
     return parser
 
 

@@ -73,6 +73,8 @@ class Summary:
     - `pairs`: the (output, input) pairs shown in zero tables and figures.
     - `notes`: extra named results (e.g. a loop gain and phase margin).
     - `model`: the `LinearModel` itself, for figures.
+    - `states`: the other steady states at these values
+      (`adlin.report.states.StatesSummary`), or None when not searched.
     """
 
     name: str
@@ -90,6 +92,7 @@ class Summary:
     notes: list[Quantity] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
     model: Any = None
+    states: Any = None  # a report.states.StatesSummary when several states were searched
     safety_note: str = SAFETY_NOTE
 
 
@@ -176,6 +179,7 @@ def summarize(
         "method": op.method,
         "converged": bool(op.converged),
         "iterations": int(op.iterations),
+        "evaluations": int(op.evaluations),
         "residual_norm": float(op.residual_norm),
         "message": op.message,
     }

@@ -15,6 +15,7 @@ from typing import Any
 
 from .._linear.pole_table import Root
 from . import Quantity, Summary
+from .states import states_to_dict
 
 SCHEMA = "adlin.summary/1"
 
@@ -66,6 +67,7 @@ def to_dict(summary: Summary) -> dict[str, Any]:
         "normalized": None,
         "notes": {q.name: _quantity(q) for q in summary.notes},
         "warnings": list(summary.warnings),
+        "steady_states": None if summary.states is None else states_to_dict(summary.states),
         "safety_note": summary.safety_note,
     }
     nm = summary.normalized

@@ -91,10 +91,19 @@ def _quantities(rows: Iterable[Quantity]) -> Table:
 def _bias(summary: Summary) -> list:
     s = summary.solver
     status = "converged" if s["converged"] else s["message"]
+    # a strategy other than plain Newton is worth naming with its cost
+    long_names = {"conductance": "conductance stepping", "source": "source stepping",
+                  "pseudo-transient": "pseudo-transient continuation",
+                  "homotopy": "Newton homotopy"}
+    method = long_names.get(s["method"], s["method"])
+    effort = (f" in {s['iterations']} iteration{'' if s['iterations'] == 1 else 's'}, "
+              if s["method"] == "newton" else
+              f" and a Newton polish, {s['iterations']} steps, "
+              f"{s.get('evaluations', 0)} residual evaluations over every strategy tried, ")
     head = Text.assemble(
         ("Solved by ", DIM),
-        (s["method"], "bold"),
-        (f" in {s['iterations']} iteration{'' if s['iterations'] == 1 else 's'}, ", DIM),
+        (method, "bold"),
+        (effort, DIM),
         (status, DIM),
         (f"; largest residual {s['residual_norm']:.2g}.", DIM),
     )
@@ -217,6 +226,24 @@ def _normalized(summary: Summary) -> list:
     return out
 
 
+def _states(summary: Summary) -> list:
+    s = summary.states
+    if s is None:
+        return []
+    if not s.several:
+        return [Text(s.message(), style=DIM)]
+    table = _table("", ("#", "right"), ("class", "left"), ("found by", "left"),
+                   *((name, "right") for name, _ in s.columns), ("max Re(pole)", "right"))
+    for r in s.rows:
+        rate = "" if r.growth_rate is None else value_text(r.growth_rate, "rad/s")
+        mark = Text(f"{r.index} ◀ used", style="bold") if r.used else str(r.index)
+        table.add_row(mark, Text(r.label, style="bold" if r.stable else ACCENT), r.found_by,
+                      *(value_text(r.values[name], unit) for name, unit in s.columns), rate)
+    notes = [Text("note: " + n, style=DIM) for n in s.notes]
+    return [_heading("Steady states at these values"), Text(s.message(), style=ACCENT), table,
+            *notes]
+
+
 def _notes(summary: Summary) -> list:
     if not summary.notes:
         return []
@@ -231,6 +258,7 @@ def renderables(summary: Summary) -> Group:
         ),
     ]
     parts += _bias(summary)
+    parts += _states(summary)
     parts += _devices(summary)
     parts += _roots("Poles", summary.poles, "pole")
     for (o, i), roots in summary.zeros.items():

@@ -1,0 +1,1 @@
+"""Several steady states at one parameter set: deflation, source ramp, classification."""

@@ -1,0 +1,102 @@
+"""Command-line values: numbers with SI prefixes, NAME=VALUE lists, name checks.
+
+Shared by every subcommand.  Malformed values raise `CommandError`, which
+the entry point prints as one sentence with exit status 2.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Sequence
+
+_PREFIX = {
+    "T": 1e12,
+    "G": 1e9,
+    "M": 1e6,
+    "k": 1e3,
+    "m": 1e-3,
+    "u": 1e-6,
+    "µ": 1e-6,
+    "n": 1e-9,
+    "p": 1e-12,
+    "f": 1e-15,
+}
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([TGMkmuµnpf]?)\s*$")
+
+
+class CommandError(Exception):
+    """A malformed command line that argparse itself does not catch."""
+
+
+# -- NAME=VALUE ---------------------------------------------------------------------
+def parse_number(text: str) -> float:
+    """A float, optionally with an SI prefix: '4.7u' -> 4.7e-6, '10k' -> 1e4.
+
+    **Raises:** `ValueError` for anything else (including 'inf' and 'nan').
+    """
+    m = _NUMBER.match(text)
+    if not m:
+        raise ValueError(text)
+    value = float(m.group(1)) * _PREFIX.get(m.group(2), 1.0)
+    if not math.isfinite(value):
+        raise ValueError(text)
+    return value
+
+
+def parse_assignments(items: Sequence[str] | None, option: str) -> dict[str, float]:
+    """``["R1=10k", "v_in=0.6"]`` -> ``{"R1": 1e4, "v_in": 0.6}``.
+
+    **Raises:** `CommandError` naming the malformed item.
+    """
+    out: dict[str, float] = {}
+    for item in items or ():
+        name, sep, value = item.partition("=")
+        name = name.strip()
+        if not sep or not name:
+            raise CommandError(
+                f"{option} {item!r} is not NAME=VALUE; write it like "
+                f"{option} R1=4.7k (SI prefixes T G M k m u n p f allowed)."
+            )
+        try:
+            out[name] = parse_number(value)
+        except ValueError:
+            raise CommandError(
+                f"{option} {item!r}: {value.strip()!r} is not a finite number; "
+                "write e.g. 4.7e3, 4.7k or 0.6."
+            ) from None
+    return out
+
+
+def split_settings(system, settings: dict[str, float]) -> tuple[dict[str, float], dict[str, float]]:
+    """Route ``--set`` values to the System's inputs and parameters by name.
+
+    **Raises:** `ParameterError` for a name that is neither.
+    """
+    from .._errors import ParameterError, did_you_mean
+
+    inputs, params = {}, {}
+    valid = list(system.inputs) + list(system.param_names)
+    for name, value in settings.items():
+        if name in system.inputs:
+            inputs[name] = value
+        elif name in system.param_names:
+            params[name] = value
+        else:
+            hint = did_you_mean(name, valid)
+            raise ParameterError(
+                f"--set {name}=...: {system.name!r} has no input or parameter "
+                f"{name!r}; {hint}{'' if hint.endswith('?') else '.'}"
+            )
+    return inputs, params
+
+
+def _check_choice(option: str, name: str | None, valid: Sequence[str], model: str) -> None:
+    from .._errors import ParameterError, did_you_mean
+
+    if name is not None and name not in valid:
+        hint = did_you_mean(name, valid)
+        raise ParameterError(
+            f"{option} {name}: {model!r} has no such {option[2:]}; "
+            f"{hint}{'' if hint.endswith('?') else '.'}"
+        )

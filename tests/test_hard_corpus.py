@@ -1,0 +1,193 @@
+"""The hard-to-start corpus: auto finds each intended steady state.
+
+For every circuit of `adlin.scenarios.hard.CORPUS`:
+
+- `strategy=case.strategy` (auto) converges to the intended state: the
+  operating region of the case and its hand-calculated values (each names its
+  textbook or paper in the scenario module), and the same point as an outside
+  solver (scipy.optimize.root, MINPACK Levenberg-Marquardt) started from a
+  hand-derived guess near it;
+- plain Newton from the zero guess behaves as the case documents (fails,
+  lands on another state, or converges), so the documentation stays true;
+- the winning strategy is recorded (``record_property("strategy", ...)``,
+  shown in the JUnit XML, and printed with ``-s``).
+
+Circuits with several transistors compile for tens of seconds on a loaded
+machine, so they are marked slow.
+"""
+
+from __future__ import annotations
+
+import functools
+
+import jax
+import numpy as np
+import pytest
+import scipy.linalg
+import scipy.optimize
+
+import adlin
+from adlin.scenarios import hard
+from adlin.scenarios.hard import CORPUS, NEWTON_CONVERGES, NEWTON_FAILS, NEWTON_OTHER_STATE
+
+
+def _params(case):
+    marks = [pytest.mark.slow] if case.slow else []
+    return pytest.param(case, id=case.name, marks=marks)
+
+
+@functools.cache
+def _residual(name: str):
+    """Jitted residual and Jacobian of a case at its inputs and parameters, for scipy."""
+    case = hard.case(name)
+    system = case.build()
+    u = system.input_vector(case.inputs)
+    p = system.param_vector(case.params)
+    f = jax.jit(lambda x: system.f(x, u, p))
+    jac = jax.jit(jax.jacfwd(lambda x: system.f(x, u, p)))
+    return (lambda x: np.asarray(f(x))), (lambda x: np.asarray(jac(x)))
+
+
+def _outside_root(case, guess: dict[str, float]) -> np.ndarray:
+    """scipy.optimize.root (MINPACK Levenberg-Marquardt, lmder) on the same residual
+    from a hand-derived guess; the result must zero every equation to rounding."""
+    system = case.build()
+    x0 = np.array([guess.get(name, 0.0) for name in system.unknowns])
+    f, jac = _residual(case.name)
+    sol = scipy.optimize.root(f, x0, jac=jac, method="lm",
+                              options={"xtol": 1e-14, "ftol": 1e-14})
+    assert sol.success, f"{case.name}: scipy did not converge from the hand guess: {sol.message}"
+    _assert_solves(case, sol.x)
+    return sol.x
+
+
+def _assert_solves(case, x) -> None:
+    # |f_i| small against the size of the terms in equation i (sum_j |J_ij| (|x_j| + 1))
+    f, jac = _residual(case.name)
+    scale = np.abs(jac(x)) @ (np.abs(x) + 1.0)
+    assert np.all(np.abs(f(x)) <= 1e-9 * scale + 1e-15), f"{case.name}: not a solution"
+
+
+def _max_real_pole(system, op) -> float:
+    lin = adlin.linearize(system, op)
+    w = scipy.linalg.eigvals(np.asarray(lin.A), np.asarray(lin.E))
+    return float(np.max(w[np.isfinite(w)].real))
+
+
+def _close(x, ref) -> np.ndarray:
+    # volts and amperes: 1 uV / 1 nA absolute plus 1e-7 relative
+    return np.abs(np.asarray(x) - ref) <= 1e-6 + 1e-7 * np.abs(ref)
+
+
+@pytest.mark.parametrize("case", [_params(c) for c in CORPUS])
+def test_auto_finds_the_intended_state(case, record_property):
+    system = case.build()
+    op = adlin.steady_state(system, case.inputs, case.params, strategy=case.strategy,
+                            throw=False)
+    record_property("strategy", op.method)
+    record_property("evaluations", int(op.evaluations))
+    print(f"{case.name}: {op.method}, {int(op.evaluations)} evaluations; {op.attempts_message}")
+    assert case.is_intended(op), f"{case.misses(op)}; tried: {op.attempts_message}"
+    ref = _outside_root(case, dict(case.reference_guess))
+    ok = _close(op.x, ref)
+    assert ok.all(), [(n, float(a), float(b)) for n, a, b, good
+                      in zip(system.unknowns, np.asarray(op.x), ref, ok, strict=True) if not good]
+
+
+@pytest.mark.parametrize("case", [_params(c) for c in CORPUS])
+def test_newton_from_zero_behaves_as_documented(case):
+    system = case.build()
+    op = adlin.steady_state(system, case.inputs, case.params, strategy="newton", throw=False)
+    if not bool(op.converged):
+        outcome = NEWTON_FAILS
+    elif case.is_intended(op):
+        outcome = NEWTON_CONVERGES
+    else:
+        outcome = NEWTON_OTHER_STATE
+    print(f"{case.name}: plain Newton from zero {outcome} ({op.attempts_message})")
+    assert outcome == case.newton_from_zero
+    if outcome == NEWTON_OTHER_STATE:
+        _assert_solves(case, np.asarray(op.x))  # a genuine solution, not a stalled iterate
+        # both such cases document the other state as unstable (a saddle, an unstable focus)
+        assert _max_real_pole(system, op) > 0.0
+
+
+# --- facts the case descriptions rest on -----------------------------------------------
+
+
+def test_latch_power_up_ramp_ends_in_the_intended_state():
+    """The intended latch state is the end of the slow supply ramp: a scipy
+    continuation in the source scale s (0 -> 1 in 200 steps, each solved from the
+    previous point) is an outside definition of "the state it powers up in"."""
+    case = hard.case("preset_latch")
+    system = case.build()
+    u1 = np.asarray(system.input_vector(case.inputs))
+    p = system.param_vector(case.params)
+    f = jax.jit(lambda x, u: system.f(x, u, p))
+    jac = jax.jit(jax.jacfwd(lambda x, u: system.f(x, u, p)))
+    x = np.zeros(system.n)
+    for s in np.linspace(0.0, 1.0, 201)[1:]:
+        sol = scipy.optimize.root(lambda x, u=s * u1: np.asarray(f(x, u)), x,
+                                  jac=lambda x, u=s * u1: np.asarray(jac(x, u)), method="hybr")
+        assert sol.success, f"ramp lost at s = {s}"
+        x = sol.x
+    q, qb = x[system.unknowns.index("v_q")], x[system.unknowns.index("v_qb")]
+    assert q > 0.9 * hard.latch.V_DD and qb < 0.1 * hard.latch.V_DD
+
+
+def test_latch_zero_start_is_the_metastable_saddle():
+    """Newton's answer from zero solves the equations but has a pole in the right
+    half-plane (generalized eigenvalues of (A, E) by scipy's QZ)."""
+    case = hard.case("preset_latch")
+    system = case.build()
+    op = adlin.steady_state(system, case.inputs, case.params, strategy="newton")
+    assert 0.3 < float(op["v_q"]) < 1.5 and 0.3 < float(op["v_qb"]) < 1.5
+    assert _max_real_pole(system, op) > 0.0
+
+
+@pytest.mark.slow
+def test_schmitt_has_a_second_stable_state_at_the_same_input():
+    """Ambiguity, checked from outside: scipy from a hand guess with Q1 on finds
+    another solution (output high), and both stored states are stable."""
+    case = hard.case("schmitt")
+    system = case.build()
+    other = _outside_root(case, hard.schmitt.other_state_guess())
+    intended = _outside_root(case, dict(case.reference_guess))
+    k = system.unknowns.index("v_c2")
+    assert other[k] > 4.9 and intended[k] < 4.0  # output high vs low
+    for x in (other, intended):
+        op = adlin.steady_state(system, case.inputs, case.params, guess=x, strategy="newton")
+        assert _max_real_pole(system, op) < 0.0
+
+
+def test_tunnel_oscillator_bias_is_unstable_with_the_hand_poles():
+    """The returned bias is the unstable one, and its poles are the roots of the
+    tank's characteristic equation by hand (`small_signal_poles`)."""
+    case = hard.case("tunnel_oscillator")
+    system = case.build()
+    op = adlin.steady_state(system, case.inputs, case.params, strategy=case.strategy)
+    poles = np.sort_complex(np.asarray(adlin.linearize(system, op).poles()))
+    hand = np.sort_complex(np.array(hard.tunnel_oscillator.small_signal_poles()))
+    np.testing.assert_allclose(poles, hand, rtol=1e-7)
+    assert np.all(poles.real > 0)
+
+
+@pytest.mark.slow
+def test_regulator_with_a_weak_start_up_resistor_sticks():
+    """The start-up margin the case describes: with RSU = 150 kOhm a stable state
+    with the output near 0.5 V exists, and Newton from zero lands in it."""
+    case = hard.case("regulator_startup")
+    system = case.build()
+    op = adlin.steady_state(system, case.inputs, {"RSU": 150e3}, strategy="newton")
+    assert 0.2 < float(op["v_out"]) < 1.0 and not case.predicate(op)
+    assert _max_real_pole(system, op) < 0.0
+    good = adlin.steady_state(system, case.inputs, {"RSU": 150e3},
+                              guess=dict(case.reference_guess), strategy="newton")
+    assert case.predicate(good)  # the regulating state still exists beside it
+
+
+def test_corpus_is_complete_and_names_are_unique():
+    names = [c.name for c in CORPUS]
+    assert len(names) >= 8 and len(set(names)) == len(names)
+    with pytest.raises(adlin.ParameterError, match="ptat_cell"):
+        hard.case("ptat_cel")
