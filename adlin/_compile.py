@@ -15,7 +15,9 @@ import jax.numpy as jnp
 import numpy as np
 
 from ._checks import analyze
+from ._derivatives import derivatives_of
 from ._linear.model import LinearModel
+from ._steady.implicit import newton_update
 from ._steady.newton import JunctionTable, NewtonOptions, newton_solve
 from ._steady.operating_point import OperatingPoint
 from ._steady.strategies import AbstractStrategy, Candidate, Newton, Problem
@@ -56,6 +58,7 @@ class CompiledSystem:
     def __init__(self, system: System, options: NewtonOptions | None = None):
         self.system = system
         self.options = options or NewtonOptions()
+        self.derivatives = derivatives_of(system)
         # One jitted program gives the whole local model (f, E, A, B, C, D, y) at a
         # point: the structural checks, the finite check at a guess and
         # linearization all reuse it, so it is compiled once.
@@ -74,7 +77,7 @@ class CompiledSystem:
         """Steady state from guess x0: plain Newton, then one implicit-function step."""
         s = self.system
         res = newton_solve(lambda x: s.f(x, u, p), jax.lax.stop_gradient(x0), self.junctions,
-                           self.options)
+                           self.options, value_and_jacobian=self._jacobian(u, p))
         slot = jnp.arange(N_STRATEGIES) == NEWTON
         record = Candidate(
             x=res.x, reason=res.status, evaluations=res.evaluations, steps=res.iterations,
@@ -86,7 +89,7 @@ class CompiledSystem:
             attempt_progress=jnp.where(slot, 1.0, 0.0),
         )
         return self._finish(u, p, res.x, res.jacobian, res.status, res.iterations,
-                            res.evaluations, record)
+                            res.evaluations, record, step=res.step, residual=res.residual)
 
     def problem(self, u, p) -> Problem:
         """The `Problem` strategies search, at stop-gradient (u, p): derivatives come
@@ -106,7 +109,7 @@ class CompiledSystem:
         # (no iteration) where the search failed or already ended on a Newton test.
         needs = (cand.reason == 0) & ~cand.polished
         pol = newton_solve(lambda x: s.f(x, u, p), cand.x, self.junctions, self.options,
-                           active=needs)
+                           active=needs, value_and_jacobian=self._jacobian(u, p))
         polish_failed = needs & (pol.status != 0)
         status = jnp.where(needs, jnp.where(polish_failed, POLISH_FAILED, 0), cand.reason)
         xs = jnp.where(needs, pol.x, cand.x)
@@ -118,21 +121,32 @@ class CompiledSystem:
         evaluations = cand.evaluations + pol.evaluations
         return self._finish(u, p, xs, J, status, iterations, evaluations, cand)
 
-    def _finish(self, u, p, xs, J, status, iterations, evaluations, record: Candidate):
+    def _jacobian(self, u, p):
+        """x -> (f, df/dx) for Newton: the cheapest exact Jacobian (`adlin._derivatives`)."""
+        return lambda x: self.derivatives.current_x(x, u, p)
+
+    def _finish(self, u, p, xs, J, status, iterations, evaluations, record: Candidate,
+                step=None, residual=None):
         """The OperatingPoint at a solved xs, with x differentiable in (u, p).
 
         x_out = x* - J^-1 f(x*, u, p) with x* and J = df/dx(x*) held constant is
         the final Newton update (x* passed the convergence test), and its
         derivative is exactly dx/dp = -J^-1 df/dp (implicit function theorem),
-        whatever path found x*.
+        whatever path found x*.  When the solver hands over that update
+        (`step`, with f at x* as `residual`), values need no second solve
+        (`newton_update`).
         """
         s = self.system
         converged = status == 0
         xs = jax.lax.stop_gradient(xs)
         J = jax.lax.stop_gradient(J)
         f_star = s.f(xs, u, p)
-        step = jnp.linalg.solve(J, f_star)
-        x = jnp.where(converged & jnp.all(jnp.isfinite(step)), xs - step, xs)
+        if step is None:
+            step = -jnp.linalg.solve(J, f_star)
+            residual = f_star
+        step = jax.lax.stop_gradient(step)
+        x = jnp.where(converged & jnp.all(jnp.isfinite(step)),
+                      newton_update(xs, step, J, f_star), xs)
         return OperatingPoint(
             x=x,
             u=u,
@@ -142,7 +156,7 @@ class CompiledSystem:
             status=status,
             iterations=iterations,
             evaluations=evaluations,
-            residual_norm=jnp.max(jnp.abs(jax.lax.stop_gradient(f_star))),
+            residual_norm=jnp.max(jnp.abs(jax.lax.stop_gradient(residual))),
             strategy=record.code,
             attempts=record.attempts,
             attempt_evaluations=record.attempt_evaluations,
@@ -175,17 +189,14 @@ class CompiledSystem:
         s = self.system
         n = s.n
 
-        def with_value(fn):
-            def split(z):
-                y = fn(z[:n], z[n:], p)
-                return y, y
+        def split(z):
+            y = s.g(z[:n], z[n:], p)
+            return y, y
 
-            return jax.jacfwd(split, has_aux=True)(jnp.concatenate([x, u]))
-
-        Jf, f = with_value(s.f)
-        Jg, y = with_value(s.g)
-        E = jax.jacfwd(s.q)(x, p)
-        return f, E, -Jf[:, :n], -Jf[:, n:], Jg[:, :n], Jg[:, n:], y
+        Jg, y = jax.jacfwd(split, has_aux=True)(jnp.concatenate([x, u]))
+        f, dfdx, dfdu = self.derivatives.current(x, u, p)
+        _, E = self.derivatives.charge(x, p)
+        return f, E, -dfdx, -dfdu, Jg[:, :n], Jg[:, n:], y
 
     def matrices(self, x, u, p):
         """(E, A, B, C, D) at a point (jitted through `local`)."""

@@ -115,6 +115,7 @@ class NewtonResult(eqx.Module):
     iterations: jax.Array
     residual: jax.Array  # f at x
     jacobian: jax.Array  # df/dx at x (reused for the implicit-function step)
+    step: jax.Array  # the Newton update -J^-1 f at x (on success, the final update)
     update_ratio: jax.Array  # max |dx_i| / tol_i of the last Newton step
     residual_ratio: jax.Array  # max |f_i| / tol_i at x
     evaluations: jax.Array  # residual evaluations; a Jacobian counts as n of them
@@ -133,6 +134,7 @@ def newton_solve(
     junctions: JunctionTable,
     opts: NewtonOptions,
     active=True,
+    value_and_jacobian: Callable[[jax.Array], tuple[jax.Array, jax.Array]] | None = None,
 ) -> NewtonResult:
     """Solve fun(x) = 0 from x0. Pure JAX; never raises on non-convergence.
 
@@ -144,7 +146,8 @@ def newton_solve(
     are both within tolerance; that x, with f and df/dx there, is returned
     (the caller's implicit-function step then applies the final update).
     The model is traced twice (value+Jacobian, and value for the line search)
-    to keep compilation short.
+    to keep compilation short.  `value_and_jacobian(x) -> (f, df/dx)`, if
+    given, replaces forward-mode AD of `fun` (a cheaper exact Jacobian).
     """
     n = x0.shape[0]
 
@@ -152,7 +155,12 @@ def newton_solve(
         y = fun(x)  # traced once: the value rides along as the auxiliary output
         return y, y
 
-    value_and_jac = jax.jacfwd(value_twice, has_aux=True)
+    if value_and_jacobian is None:
+        value_and_jac = jax.jacfwd(value_twice, has_aux=True)
+    else:
+        def value_and_jac(x):
+            f, J = value_and_jacobian(x)
+            return J, f
 
     def merit(f, w):
         m = 0.5 * jnp.sum((w * f) ** 2)
@@ -204,6 +212,7 @@ def newton_solve(
             "x": jnp.where(status < 0, x + ls["alpha"] * dx_safe, x),
             "f": f,
             "J": J,
+            "dx": dx,
             "k": state["k"] + 1,
             "status": status,
             "evals": state["evals"] + 1 + n + ls["tries"],
@@ -215,6 +224,7 @@ def newton_solve(
         "x": x0,
         "f": jnp.zeros_like(x0),
         "J": jnp.zeros((n, n), x0.dtype),
+        "dx": jnp.zeros_like(x0),
         "k": jnp.asarray(0),
         "status": jnp.where(active, -1, MAX_ITERATIONS),
         "evals": jnp.asarray(0),
@@ -229,6 +239,7 @@ def newton_solve(
         iterations=out["k"],
         residual=out["f"],
         jacobian=out["J"],
+        step=out["dx"],
         update_ratio=out["upd"],
         residual_ratio=out["res"],
         evaluations=out["evals"],
