@@ -19,7 +19,14 @@ from pathlib import Path
 
 import numpy as np
 
-from .options import CommandError, parse_assignments, parse_number, split_settings
+from .options import (
+    CommandError,
+    parse_assignments,
+    parse_number,
+    prepare_figure_directory,
+    split_settings,
+    write_figures_into,
+)
 
 # Distortion is shown at these fractions of the smallest linear-range limit.
 DISTORTION_FRACTIONS = (0.1, 0.3, 1.0)
@@ -135,13 +142,7 @@ def cmd_check(args, out=None) -> int:
     tol = parse_tolerance(args.tol)
     amplitudes = parse_amplitudes(args.amplitudes)
     f_hz = None if args.f_hz is None else parse_number_option("--f-hz", args.f_hz)
-    if args.plots:
-        try:
-            Path(args.plots).mkdir(parents=True, exist_ok=True)
-        except OSError as err:
-            raise CommandError(f"cannot create the figure directory '{args.plots}' "
-                               f"({err.strerror or err}); choose a writable directory with "
-                               "--plots DIR.") from err
+    prepare_figure_directory(args.plots)
     op = steady_state(system, inputs=inputs, params=params, guess=guess or None)
     kinds = ("step", "sine") if args.kind == "both" else (args.kind,)
     notes: list[str] = []
@@ -173,11 +174,7 @@ def cmd_check(args, out=None) -> int:
     if args.plots:
         from ..report.trust_figures import write_check_figures
 
-        try:
-            figures = write_check_figures(summary, args.plots)
-        except OSError as err:
-            raise CommandError(f"cannot write figures to '{args.plots}' ({err.strerror or err}); "
-                               "choose a writable directory with --plots DIR.") from err
+        figures = write_figures_into(args.plots, lambda d: write_check_figures(summary, d))
     if args.json:
         import json
 

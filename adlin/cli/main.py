@@ -32,7 +32,9 @@ from .options import (
     _check_choice,
     parse_assignments,
     parse_number,
+    prepare_figure_directory,
     split_settings,
+    write_figures_into,
 )
 
 # parse_* and CommandError are re-exported: tests and subcommands import them from here
@@ -112,14 +114,7 @@ def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out
     guess.update(parse_assignments(getattr(args, "guess", None), "--guess"))
     _check_choice("--input", args.input, system.inputs, system.name)
     _check_choice("--output", args.output, system.outputs, system.name)
-    if args.plots:
-        try:
-            Path(args.plots).mkdir(parents=True, exist_ok=True)
-        except OSError as err:
-            raise CommandError(
-                f"cannot create the figure directory '{args.plots}' ({err.strerror or err}); "
-                "choose a writable directory with --plots DIR."
-            ) from err
+    prepare_figure_directory(args.plots)
     op = steady_state(system, inputs=inputs, params=params, guess=guess or None)
     model = linearize(system, op)
     devices = circuit.small_signal(op) if circuit is not None else None
@@ -133,14 +128,7 @@ def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out
     if args.plots:
         from ..report.figures import write_figures
 
-        try:
-            figures = write_figures(summary, args.plots)
-        except OSError as err:
-            raise CommandError(
-                f"cannot write figures to '{args.plots}' "
-                f"({err.strerror or err}); choose a writable directory "
-                "with --plots DIR."
-            ) from err
+        figures = write_figures_into(args.plots, lambda d: write_figures(summary, d))
     if args.json:
         import json
 

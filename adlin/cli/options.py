@@ -100,3 +100,30 @@ def _check_choice(option: str, name: str | None, valid: Sequence[str], model: st
             f"{option} {name}: {model!r} has no such {option[2:]}; "
             f"{hint}{'' if hint.endswith('?') else '.'}"
         )
+
+
+def prepare_figure_directory(directory: str | None) -> None:
+    """Create the ``--plots`` directory before any slow work starts.
+
+    **Raises:** `CommandError` naming the directory when it cannot be created.
+    """
+    if not directory:
+        return
+    from pathlib import Path
+
+    try:
+        Path(directory).mkdir(parents=True, exist_ok=True)
+    except OSError as err:
+        raise CommandError(
+            f"cannot create the figure directory '{directory}' ({err.strerror or err}); "
+            "choose a writable directory with --plots DIR.") from err
+
+
+def write_figures_into(directory: str, write):
+    """Call ``write(directory)`` and turn a file-system error into a `CommandError`."""
+    try:
+        return write(directory)
+    except OSError as err:
+        raise CommandError(
+            f"cannot write figures to '{directory}' ({err.strerror or err}); choose a "
+            "writable directory with --plots DIR.") from err

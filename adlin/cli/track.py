@@ -14,9 +14,15 @@ from __future__ import annotations
 import argparse
 import sys
 from contextlib import contextmanager
-from pathlib import Path
 
-from .options import CommandError, parse_assignments, parse_number, split_settings
+from .options import (
+    CommandError,
+    parse_assignments,
+    parse_number,
+    prepare_figure_directory,
+    split_settings,
+    write_figures_into,
+)
 
 
 def _number(option: str, text: str) -> float:
@@ -64,13 +70,7 @@ def cmd_track(args, out=None) -> int:
         check_column(system, args.show)
     if args.points < 2:
         raise CommandError(f"--points {args.points}: a branch needs at least 2 points.")
-    if args.plots:
-        try:
-            Path(args.plots).mkdir(parents=True, exist_ok=True)
-        except OSError as err:
-            raise CommandError(
-                f"cannot create the figure directory '{args.plots}' ({err.strerror or err}); "
-                "choose a writable directory with --plots DIR.") from err
+    prepare_figure_directory(args.plots)
     with _progress(start, stop, args.param, sys.stderr.isatty() and not args.json) as update:
         branch = track(system, args.param, start, stop, inputs=inputs, params=params,
                        guess=guess or None, step=step, max_points=args.points,
@@ -81,12 +81,7 @@ def cmd_track(args, out=None) -> int:
     if args.plots and len(summary.values):
         from ..report.branch_figure import write_branch_figure
 
-        try:
-            figure = write_branch_figure(summary, args.plots)
-        except OSError as err:
-            raise CommandError(f"cannot write the branch diagram to '{args.plots}' "
-                               f"({err.strerror or err}); choose a writable directory "
-                               "with --plots DIR.") from err
+        figure = write_figures_into(args.plots, lambda d: write_branch_figure(summary, d))
     if args.json:
         import json
 
