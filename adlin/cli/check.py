@@ -23,6 +23,7 @@ from .options import (
     CommandError,
     parse_assignments,
     parse_number,
+    parse_option_number,
     prepare_figure_directory,
     split_settings,
     write_figures_into,
@@ -141,7 +142,7 @@ def cmd_check(args, out=None) -> int:
     out_name = _one_of("--output", args.output, system.outputs, system.name)
     tol = parse_tolerance(args.tol)
     amplitudes = parse_amplitudes(args.amplitudes)
-    f_hz = None if args.f_hz is None else parse_number_option("--f-hz", args.f_hz)
+    f_hz = None if args.f_hz is None else parse_option_number("--f-hz", args.f_hz)
     prepare_figure_directory(args.plots)
     op = steady_state(system, inputs=inputs, params=params, guess=guess or None)
     kinds = ("step", "sine") if args.kind == "both" else (args.kind,)
@@ -190,14 +191,6 @@ def cmd_check(args, out=None) -> int:
         if figures:
             console.print("Figures: " + ", ".join(str(p) for p in figures))
     return 0
-
-
-def parse_number_option(option: str, text: str) -> float:
-    try:
-        return parse_number(text)
-    except ValueError:
-        raise CommandError(f"{option} {text!r} is not a finite number; write e.g. 1k or "
-                           "2.5e3.") from None
 
 
 def add_check_command(sub, common: argparse.ArgumentParser) -> None:

@@ -127,3 +127,15 @@ def write_figures_into(directory: str, write):
         raise CommandError(
             f"cannot write figures to '{directory}' ({err.strerror or err}); choose a "
             "writable directory with --plots DIR.") from err
+
+
+def parse_option_number(option: str, text: str) -> float:
+    """The value of a numeric option such as ``--from 10k``.
+
+    **Raises:** `CommandError` naming the option when `text` is not a finite number.
+    """
+    try:
+        return parse_number(text)
+    except ValueError:
+        raise CommandError(f"{option} {text!r} is not a finite number; write e.g. 2.5, "
+                           "10k or 4.7u.") from None

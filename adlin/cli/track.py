@@ -18,19 +18,11 @@ from contextlib import contextmanager
 from .options import (
     CommandError,
     parse_assignments,
-    parse_number,
+    parse_option_number,
     prepare_figure_directory,
     split_settings,
     write_figures_into,
 )
-
-
-def _number(option: str, text: str) -> float:
-    try:
-        return parse_number(text)
-    except ValueError:
-        raise CommandError(f"{option} {text!r} is not a finite number; write e.g. 2.5, "
-                           "10k or 4.7u.") from None
 
 
 @contextmanager
@@ -63,9 +55,9 @@ def cmd_track(args, out=None) -> int:
     system = loaded.system
     inputs, params = split_settings(system, parse_assignments(args.set, "--set"))
     guess = parse_assignments(args.guess, "--guess")
-    start = _number("--from", args.start)
-    stop = _number("--to", args.stop)
-    step = None if args.step is None else _number("--step", args.step)
+    start = parse_option_number("--from", args.start)
+    stop = parse_option_number("--to", args.stop)
+    step = None if args.step is None else parse_option_number("--step", args.step)
     if args.show is not None:
         check_column(system, args.show)
     if args.points < 2:
