@@ -455,6 +455,36 @@ def test_large_amplitude_parts_ways_with_a_note():
     assert "distortion of v_c" in str(d)
 
 
+@functools.cache
+def rc_lowpass() -> adlin.System:
+    """A linear RC low-pass: no harmonics at all, so any measured one is numerical."""
+
+    def current(x, u, p):
+        return jnp.stack([(x[0] - u[0]) / p["R"]])
+
+    def charge(x, p):
+        return jnp.stack([p["C"] * x[0]])
+
+    return adlin.System(current, charge, unknowns=("v",), inputs={"v_s": 1.0},
+                        params={"R": 1e3, "C": 1e-7}, name="rc_lowpass")
+
+
+@pytest.mark.slow
+def test_linear_circuit_harmonics_stay_below_resolution():
+    # A linear circuit has no harmonics (superposition, any circuits text), so
+    # prediction is exactly 0 and what the FFT finds is integration error of
+    # the order of the transient's tolerance: it must be reported as below the
+    # measurement's resolution, never as prediction and measurement parting ways.
+    system = rc_lowpass()
+    op = adlin.steady_state(system, strategy="newton")
+    d = adlin.distortion(system, op, input="v_s", output="v", amplitude=np.array([0.5]),
+                         f_hz=1e3)
+    assert float(d.predicted_hd2[0]) == 0.0 and float(d.predicted_hd3[0]) == 0.0
+    assert float(d.measured_hd2[0]) < 1e-6 and float(d.measured_hd3[0]) < 1e-6
+    assert not any("part ways" in n for n in d.notes)
+    assert any("HD2 is below the measurement's resolution" in n for n in d.notes)
+
+
 @pytest.mark.slow
 def test_measured_degeneration_dae():
     # The index-1 DAE measured through simulate's algebraic elimination: at weak

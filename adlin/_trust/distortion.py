@@ -273,7 +273,10 @@ def _comparison_notes(pred, m_hd2, m_hd3, floors, changes, options) -> list[str]
             notes.append(f"at amplitude {a:.4g} the last two periods differ by {changes[i]:.2g} "
                          "of the fundamental: the record had not settled; raise "
                          "settle_time_constants or max_periods in DistortionOptions.")
-        resolution = RESOLVED_FACTOR * floors[i]
+        # A harmonic is resolved only well above both the spectrum's noise floor and
+        # the transient's relative tolerance: integration error repeats every period,
+        # so it lands on the harmonic bins, not in the floor between them.
+        resolution = RESOLVED_FACTOR * max(floors[i], options.rtol)
         for k in (2, 3):
             p, m = p_hd[k][i], m_hd[k][i]
             if max(p, m) < resolution:
