@@ -42,3 +42,7 @@ from ._trust.linear_response import linear_response as linear_response
 from ._trust.compare import Comparison as Comparison, compare as compare
 from ._trust.linear_range import linear_range as linear_range
 from ._trust.range_result import LinearRange as LinearRange
+from . import tolerances as tolerances
+from ._design.sweep import sweep as sweep
+from ._design.monte_carlo import monte_carlo as monte_carlo
+from ._design.batch_result import MonteCarloResult as MonteCarloResult, SweepResult as SweepResult

@@ -3,6 +3,10 @@
 Later sizing and tolerance (Monte Carlo) modules join this package.
 """
 
+from .batch_result import BatchResult as BatchResult
+from .batch_result import MonteCarloResult as MonteCarloResult
+from .batch_result import SweepResult as SweepResult
+from .monte_carlo import monte_carlo as monte_carlo
 from .quantities import AbstractQuantity as AbstractQuantity
 from .quantities import Bias as Bias
 from .quantities import DCGain as DCGain
@@ -13,3 +17,4 @@ from .quantities import PoleFrequency as PoleFrequency
 from .quantities import TransferMagnitude as TransferMagnitude
 from .sensitivities import sensitivities as sensitivities
 from .sensitivity_table import Sensitivities as Sensitivities
+from .sweep import sweep as sweep
