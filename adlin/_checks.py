@@ -28,7 +28,9 @@ def _call(system: System, what: str, fn, *args):
                 f"the {what} function of {system.name!r} reads parameter {key!r}, which is not "
                 f"declared; add it to params= or fix the name ({did_you_mean(key, names)})."
             ) from None
-        raise ModelError(f"the {what} function of {system.name!r} raised KeyError({key!r}).") from None
+        raise ModelError(
+            f"the {what} function of {system.name!r} raised KeyError({key!r})."
+        ) from None
     except (ParameterError, ModelError):
         raise
     except IndexError as err:
@@ -73,7 +75,7 @@ def matrices_at(system: System, local, x, u, p):
 
 def check_finite(system: System, f, J, E, where: str) -> None:
     """Name the first equation/unknown pair that is not finite."""
-    for label, vec in (("value", f),):
+    for vec in (f,):
         bad = np.flatnonzero(~np.isfinite(vec))
         if bad.size:
             i = int(bad[0])
@@ -178,9 +180,46 @@ def analyze(system: System, local) -> Structure:
     return _analyze(system, executable, u, p)
 
 
+def forward_biased_point(system: System, near: np.ndarray) -> np.ndarray:
+    """A point close to `near` where every declared junction sits at its critical voltage.
+
+    Near x = 0 a junction with a tiny saturation current (1e-18 A, as in
+    light-emitting diodes) conducts ~1e-17 S: numerically an open circuit,
+    so a string of them looks floating although it has a DC path.  At the
+    critical voltage the junction conducts about 1 S.  Least squares on the
+    junction voltages, with a weak pull towards `near`, gives such a point
+    whenever the junctions do not contradict each other.
+    """
+    index = {name: i for i, name in enumerate(system.unknowns)}
+    rows, target = [], []
+    for j in system.junctions:
+        row = np.zeros(system.n)
+        if j.anode is not None:
+            row[index[j.anode]] += 1.0
+        if j.cathode is not None:
+            row[index[j.cathode]] -= 1.0
+        rows.append(row)
+        target.append(j.critical_voltage)
+    pull = 1e-3
+    K = np.vstack([np.asarray(rows), pull * np.eye(system.n)])
+    rhs = np.concatenate([np.asarray(target), pull * near])
+    return np.linalg.lstsq(K, rhs, rcond=None)[0]
+
+
+def _dc_jacobian(system: System, local, x, u, p, J):
+    """J at the generic point, or at a forward-biased point when only there it has full rank."""
+    if not system.junctions or null_spaces(J)[0] == system.n:
+        return J
+    _, J_on, _ = matrices_at(system, local, forward_biased_point(system, x), u, p)
+    if np.all(np.isfinite(J_on)) and null_spaces(J_on)[0] > null_spaces(J)[0]:
+        return J_on
+    return J
+
+
 def _analyze(system: System, local, u, p) -> Structure:
-    _, f, J, E = test_point(system, local, u, p)
+    x, f, J, E = test_point(system, local, u, p)
     del f
+    J = _dc_jacobian(system, local, x, u, p, J)
     check_connectivity(system, J, E)
     structure = find_structure(E)
     check_index(system, structure, J)

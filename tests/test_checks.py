@@ -1,5 +1,7 @@
 """Every bad model or input gives an adlin error that names the culprit."""
 
+import math
+
 import jax.numpy as jnp
 import pytest
 
@@ -17,20 +19,23 @@ def _rc(**kw):
 
 def test_wrong_current_shape():
     s = adlin.System(lambda x, u, p: jnp.stack([x[0], x[1], x[0]]), unknowns=("a", "b"))
-    with pytest.raises(adlin.ModelError, match=r"current function.*shape \(3,\).*2 unknowns are declared \['a', 'b'\]"):
+    with pytest.raises(adlin.ModelError, match=r"current function.*shape \(3,\)"
+                       r".*2 unknowns are declared \['a', 'b'\]"):
         adlin.compile(s)
 
 
 def test_wrong_output_shape():
     s = adlin.System(lambda x, u, p: x - 1.0, output=lambda x, u, p: x, unknowns=("a", "b"),
                      outputs=("y",))
-    with pytest.raises(adlin.ModelError, match=r"output function.*shape \(2,\).*1 outputs are declared \['y'\]"):
+    with pytest.raises(adlin.ModelError, match=r"output function.*shape \(2,\)"
+                       r".*1 outputs are declared \['y'\]"):
         adlin.compile(s)
 
 
 def test_missing_parameter_is_named():
     s = adlin.System(lambda x, u, p: x - p["Vref"], unknowns=("a",), params={"V_ref": 1.0})
-    with pytest.raises(adlin.ParameterError, match=r"reads parameter 'Vref'.*closest valid name is 'V_ref'"):
+    with pytest.raises(adlin.ParameterError, match=r"reads parameter 'Vref'"
+                       r".*closest valid name is 'V_ref'"):
         adlin.compile(s)
 
 
@@ -91,6 +96,27 @@ def test_two_nodes_floating_together():
         adlin.compile(s)
 
 
+def test_string_of_tiny_saturation_current_junctions_is_not_floating():
+    # Near 0 V a junction with Is = 1e-18 A conducts ~1e-17 S, numerically an
+    # open circuit; the check must still see the DC path through the string.
+    # The solved string obeys Shockley's law, I = Is (exp(V/(n VT)) - 1)
+    # (Sedra & Smith, Microelectronic Circuits, 7th ed., sec. 4.2), and KVL.
+    from closed_forms import VT
+
+    c = adlin.Circuit("led_string")
+    c.input("v_supply", 48.0)
+    c.voltage_source("VS", "sup", "gnd", "v_supply")
+    c.resistor("R1", "sup", "d0", 330.0)
+    for k in range(12):
+        c.diode(f"D{k}", f"d{k}", f"m{k}", saturation_current=1e-18, emission_coefficient=2.0)
+        c.resistor(f"RS{k}", f"m{k}", "gnd" if k == 11 else f"d{k + 1}", 1.0)
+    op = adlin.steady_state(c.build())
+    i = (48.0 - float(op["v_d0"])) / 330.0
+    v_junction = 2.0 * VT * math.log1p(i / 1e-18)
+    assert float(op["v_d0"]) == pytest.approx(12 * (v_junction + i * 1.0), rel=1e-9)
+    assert float(op["v_d5"]) - float(op["v_m5"]) == pytest.approx(v_junction, rel=1e-9)
+
+
 def test_index_two_source_across_capacitor():
     # an ideal source directly across a capacitor: the capacitor voltage is fixed
     # algebraically, the source current is the derivative of its charge (index 2)
@@ -124,7 +150,8 @@ def test_model_function_exception_is_wrapped():
     def bad(x, u, p):
         raise RuntimeError("boom")
 
-    with pytest.raises(adlin.ModelError, match=r"current function of 'model' failed: RuntimeError: boom"):
+    with pytest.raises(adlin.ModelError, match=r"current function of 'model' failed: "
+                       r"RuntimeError: boom"):
         adlin.compile(adlin.System(bad, unknowns=("a",)))
 
 
