@@ -7,6 +7,10 @@
     adlin track MODEL.py --param NAME --from A --to B [--show NAME] [--plots DIR] [--json]
     adlin check MODEL.py --input NAME --output NAME [--tol 1%] [--kind step|sine|both]
                          [--plots DIR] [--json]
+    adlin size MODEL.py --free NAME=LOW..HIGH ... --target SPEC ... [--round E24]
+                        [--plots DIR] [--json]
+    adlin spread MODEL.py --tol NAME=1% ... [-n N] [--of NAME] [--target SPEC]
+                          [--plots DIR] [--json]
 
 Errors caused by the model or the command line (every `adlin.AdlinError`, a
 missing model file, a malformed ``NAME=VALUE``) print one sentence to
@@ -181,6 +185,8 @@ class _Parser(argparse.ArgumentParser):
 
 def build_parser() -> argparse.ArgumentParser:
     from .check import add_check_command
+    from .size import add_size_command
+    from .spread import add_spread_command
     from .track import add_track_command
 
     base = argparse.ArgumentParser(add_help=False)
@@ -265,6 +271,8 @@ def build_parser() -> argparse.ArgumentParser:
     analyze.set_defaults(func=cmd_analyze)
     add_track_command(sub, base)
     add_check_command(sub, common)
+    add_size_command(sub, base)
+    add_spread_command(sub, base)
     return parser
 
 
