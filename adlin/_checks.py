@@ -207,13 +207,34 @@ def forward_biased_point(system: System, near: np.ndarray) -> np.ndarray:
 
 
 def _dc_jacobian(system: System, local, x, u, p, J):
-    """J at the generic point, or at a forward-biased point when only there it has full rank."""
-    if not system.junctions or null_spaces(J)[0] == system.n:
+    """The Jacobian of highest rank among a few points, for the DC-path checks.
+
+    A device law may have exactly zero slope somewhere (a square-law MOSFET
+    below threshold) or a numerically zero one (a junction with a tiny
+    saturation current near 0 V), so one point near x = 0 can make a node
+    look floating that has a DC path once its devices conduct.  A node that
+    floats, floats everywhere; so the checks use the best of: the generic
+    point, a point with every declared junction at its critical voltage, and
+    generic points around +-0.7 V and 1.5 V.
+    """
+    n = system.n
+    best, best_rank = J, null_spaces(J)[0]
+    if best_rank == n:
         return J
-    _, J_on, _ = matrices_at(system, local, forward_biased_point(system, x), u, p)
-    if np.all(np.isfinite(J_on)) and null_spaces(J_on)[0] > null_spaces(J)[0]:
-        return J_on
-    return J
+    rng = np.random.default_rng(11)
+    candidates = [forward_biased_point(system, x)] if system.junctions else []
+    candidates += [0.7 + 0.2 * rng.uniform(-1, 1, n), -0.7 + 0.2 * rng.uniform(-1, 1, n),
+                   1.5 * rng.uniform(-1, 1, n)]
+    for cand in candidates:
+        _, J_c, _ = matrices_at(system, local, cand, u, p)
+        if not np.all(np.isfinite(J_c)):
+            continue
+        rank = null_spaces(J_c)[0]
+        if rank > best_rank:
+            best, best_rank = J_c, rank
+            if rank == n:
+                break
+    return best
 
 
 def _analyze(system: System, local, u, p) -> Structure:

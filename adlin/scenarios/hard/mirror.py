@@ -1,114 +1,108 @@
-"""A bipolar current mirror with a 1:50 ratio and a beta-helper transistor.
+"""A CMOS current mirror with a 1:50 ratio, fed by a reference current.
 
-A 100 uA reference set by ``RREF`` from a 12 V rail feeds the diode side
-``Q1`` (unit area); ``Q2`` (area 50) copies it, 5 mA into a 1 kOhm load.  With
-a ratio this large the base current of the big device would starve the
-reference (error (N + 1) / beta, a third of the current at beta = 150), so an
-emitter follower ``Q3`` supplies the bases, as is usual for large ratios.
+A bias generator delivers ``i_ref`` = 20 uA into the diode-connected n-channel
+device ``M1`` (W/L giving k = 200 uA/V^2); ``M2``, fifty times wider, copies
+it: 1 mA through the 2 kOhm load ``RL`` from the 5 V rail, as in the output
+branch of a sensor excitation source.
 
-Intended state: the only one -- I_out near 50 I_ref, every device forward
-active.
+Intended state: the only one -- M1 and M2 in saturation, I_out near 50 I_ref.
 
-Newton from zero: the base node is shared by a unit device and one 50 times
-larger, so every error of the base voltage is magnified fifty-fold in the
-output current (a 60 mV error is a factor of ten); the damped Newton with
-junction limiting converges anyway (measured), so the case checks that auto
-does not escalate where it need not.
+Newton from zero: the devices follow the long-channel square law, which
+conducts exactly nothing below threshold.  At the all-zero guess both
+transistors are cut off, so the gate node has no conductance at all: the
+Jacobian is singular and plain Newton stops at its first step (measured).
+Conductance stepping (a conductance from every node to ground, stepped down)
+is the classic remedy, and it is what `auto` has to reach for.
 
-Device values from memory (small-signal NPN): I_S = 1e-16 A per unit area,
-beta 150, Early voltage 75 V.
+Device values invented for the demo, typical of a 0.35 um process: threshold
+0.5 V, k = mu C_ox W / L = 200 uA/V^2 for the unit device, lambda = 0.05 /V.
 """
 
 from __future__ import annotations
 
 import functools
-
-import scipy.constants as const
+import math
 
 from ..._circuit import Circuit
 from ..._system import System
-from ._case import NEWTON_CONVERGES, Expected, HardCase
+from ._case import NEWTON_FAILS, Expected, HardCase
 
-V_RAIL = 12.0
+V_RAIL = 5.0
 RATIO = 50.0
-R_REF = 106e3  # Ohm: (12 V - 2 V_BE) / 100 uA
-R_LOAD = 1e3
-NPN = dict(saturation_current=1e-16, forward_beta=150.0, early_voltage=75.0)
+I_REF = 20e-6
+R_LOAD = 2e3
+NMOS = dict(threshold_voltage=0.5, transconductance_parameter=200e-6,
+            channel_length_modulation=0.05)
 
 
 @functools.cache
 def mirror() -> System:
-    """The mirror as an `adlin.System` (input ``v_rail``, output ``i_out``)."""
+    """The mirror as an `adlin.System` (inputs ``v_supply``, ``i_ref``; output ``i_out``)."""
     c = Circuit("mirror_1to50")
     c.input("v_supply", V_RAIL, unit="V")
+    c.input("i_ref", I_REF, unit="A")
     c.voltage_source("VS", "rail", "gnd", "v_supply")
-    c.resistor("RREF", "rail", "ref", R_REF)
-    c.bjt("Q1", c="ref", b="base", e="gnd", **NPN)
-    c.bjt("Q2", c="out", b="base", e="gnd",
-          **(NPN | dict(saturation_current=RATIO * NPN["saturation_current"])))
-    c.bjt("Q3", c="rail", b="ref", e="base", **NPN)
-    c.resistor("RBB", "base", "gnd", 50e3)  # bleeds the follower so it stays biased
+    c.current_source("IREF", "rail", "gate", "i_ref")
+    c.mosfet("M1", d="gate", g="gate", s="gnd", b="gnd", law="square", **NMOS)
+    c.mosfet("M2", d="out", g="gate", s="gnd", b="gnd", law="square",
+             **(NMOS | dict(transconductance_parameter=RATIO * NMOS["transconductance_parameter"])))
     c.resistor("RL", "rail", "out", R_LOAD)
-    c.capacitor("CB", "base", "gnd", 10e-12)
-    c.capacitor("CO", "out", "gnd", 10e-12)
+    c.capacitor("CG", "gate", "gnd", 1e-12)
+    c.capacitor("CO", "out", "gnd", 1e-12)
     c.output("i_out", lambda v: (v["v_rail"] - v["v_out"]) / R_LOAD, unit="A")
     return c.build()
 
 
-def hand_currents() -> tuple[float, float]:
-    """Reference and output current by hand.
+def hand_values() -> tuple[float, float]:
+    """Gate voltage and output current by hand.
 
-    I_ref = (V - V_BE1 - V_BE3) / R_REF with V_BE from the Shockley law at the
-    current; the beta-helper mirror gives I_out = N I_ref / (1 + (N + 1) /
-    (beta (beta + 1))) times the Early factor (1 + (V_CE2 - V_CE1) / V_A)
-    (Gray, Hurst, Lewis & Meyer, Analysis and Design of Analog Integrated
-    Circuits, 5th ed., 2009, sec. 4.2, simple mirror with beta helper; from
-    memory).  The bleeder's current (V_BE / 50 kOhm, 14 uA through Q3) adds to
-    Q3's base current, a 0.1 % effect left out.
+    In saturation I = k/2 (V_GS - V_T)^2 (1 + lambda V_DS); the diode-connected
+    M1 has V_DS = V_GS, and M2 copies with the ratio of the two (1 + lambda
+    V_DS) factors: I_out = N I_ref (1 + lambda V_DS2) / (1 + lambda V_GS)
+    (Sedra & Smith, Microelectronic Circuits, 7th ed., 2015, sec. 8.2, the
+    basic MOSFET current source with channel-length modulation).  Both are
+    solved by fixed-point iteration (V_DS2 = V_rail - I_out R_L).
 
-    **Returns:** (I_ref, I_out) in amperes.
+    **Returns:** (V_GS, I_out) in volts and amperes.
     """
-    import math
-
-    vt = const.k * 300.15 / const.e
-    beta, i_s, va = NPN["forward_beta"], NPN["saturation_current"], NPN["early_voltage"]
-    i_ref = 100e-6
-    for _ in range(30):
-        v_be = vt * math.log(i_ref / i_s)
-        i_ref = (V_RAIL - 2.0 * v_be) / R_REF
-        i_out = RATIO * i_ref / (1.0 + (RATIO + 1.0) / (beta * (beta + 1.0)))
-        v_ce2 = V_RAIL - i_out * R_LOAD
-        i_out *= 1.0 + (v_ce2 - v_be) / va
-    return i_ref, i_out
+    k, vt, lam = (NMOS[key] for key in ("transconductance_parameter", "threshold_voltage",
+                                         "channel_length_modulation"))
+    v_gs = vt + math.sqrt(2.0 * I_REF / k)
+    for _ in range(50):
+        v_gs = vt + math.sqrt(2.0 * I_REF / (k * (1.0 + lam * v_gs)))
+    i_out = RATIO * I_REF
+    for _ in range(50):
+        i_out = RATIO * I_REF * (1.0 + lam * (V_RAIL - i_out * R_LOAD)) / (1.0 + lam * v_gs)
+    return v_gs, i_out
 
 
 def _region(op) -> bool:
-    # Q2 forward active: collector above its base; follower on
-    return float(op["v_out"]) > float(op["v_base"]) + 0.2 and float(op["v_base"]) > 0.5
+    # both devices conduct, M2 saturated: drain above gate minus threshold
+    v_g, v_o = float(op["v_gate"]), float(op["v_out"])
+    return v_g > NMOS["threshold_voltage"] and v_o > v_g - NMOS["threshold_voltage"]
 
 
 def _hand() -> dict[str, Expected]:
-    _, i_out = hand_currents()
-    # 2 %: the Early normalisation of the device law (1 - v_bc / V_A against
-    # 1 + v_ce / V_A, 0.9 % at V_A = 75 V) and beta's own Early dependence
-    return {"i_out": Expected(i_out, 0.02, 0.0, "beta-helper mirror (Gray et al. 4.2)")}
+    v_gs, i_out = hand_values()
+    source = "square-law mirror with channel-length modulation (Sedra & Smith 8.2)"
+    return {"v_gate": Expected(v_gs, 1e-9, 0.0, source),
+            "i_out": Expected(i_out, 1e-9, 0.0, source)}
 
 
 def _guess() -> dict[str, float]:
-    i_ref, i_out = hand_currents()
-    return {"v_rail": V_RAIL, "v_ref": 1.4, "v_base": 0.7, "v_out": V_RAIL - i_out * R_LOAD}
+    v_gs, i_out = hand_values()
+    return {"v_rail": V_RAIL, "v_gate": v_gs, "v_out": V_RAIL - i_out * R_LOAD}
 
 
 CASE = HardCase(
     name="mirror_1to50",
-    description="NPN current mirror, ratio 1:50, beta helper, 12 V",
+    description="square-law CMOS current mirror, ratio 1:50, 20 uA reference, 5 V",
     build=mirror,
-    newton_from_zero=NEWTON_CONVERGES,
-    why="a unit device and a 50x device share one base node, so base-voltage errors are "
-        "magnified fifty-fold; damped Newton copes, auto must not escalate",
-    intended="I_out near 50 x 100 uA = 5 mA, Q2 forward active",
+    newton_from_zero=NEWTON_FAILS,
+    why="square-law devices conduct nothing below threshold, so at the all-zero guess the "
+        "gate node has no conductance and the Jacobian is singular",
+    intended="I_out near 50 x 20 uA = 1 mA, both devices in saturation",
     predicate=_region,
     hand=_hand,
     reference_guess=_guess(),
-    slow=True,
 )
