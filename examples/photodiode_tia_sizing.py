@@ -39,7 +39,7 @@ the -3 dB bandwidth at 100 kHz with no peaking:
     adlin size examples/photodiode_tia_sizing.py --free R_F=100k..10M --free C_F=0.1p..20p \\
         --target pair=100k,0.707 --round E24 --plots /tmp/tia
     adlin spread examples/photodiode_tia_sizing.py --set R_F=1.6M --set C_F=1.4p \\
-        --tol C_D=10% --tol GBW=20%:normal --target damping>=0.6 -n 2000
+        --tol C_D=10% --tol GBW=20%:normal --target 'damping>=0.7' -n 2000
 """
 
 import math
