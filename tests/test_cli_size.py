@@ -240,3 +240,24 @@ def test_example_runs_as_a_script():
                           timeout=300, env={**os.environ, "ADLIN_CACHE_DIR": ""})
     assert done.returncode == 0, done.stderr
     assert "targets met" in done.stdout and "classic:" in done.stdout
+
+
+class _Terminal(io.StringIO):
+    def isatty(self) -> bool:  # the progress bar runs only on a terminal
+        return True
+
+
+def test_progress_bar_is_fed_by_the_callbacks(rc_model):
+    err = _Terminal()
+    old = os.environ.get("ADLIN_CACHE_DIR")
+    os.environ["ADLIN_CACHE_DIR"] = ""
+    try:
+        with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(err):
+            status = main(["size", str(rc_model), "--free", "R=100..1M", "--target", "pole=2k",
+                            "--starts", "2", "--iterations", "5"])
+    finally:
+        if old is None:
+            os.environ.pop("ADLIN_CACHE_DIR", None)
+        else:
+            os.environ["ADLIN_CACHE_DIR"] = old
+    assert status == 0, err.getvalue()

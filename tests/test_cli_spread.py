@@ -199,3 +199,23 @@ def test_photodiode_yield_of_a_damping_target_under_a_capacitance_spread(tmp_pat
     tau = a0 / (2 * math.pi * gbw)
     f_nominal = math.sqrt((1 + a0) / (tau * r_f * (c_d + c_f))) / (2 * math.pi)
     assert _row(data, "pole 0 frequency")["median"] == pytest.approx(f_nominal, rel=0.01)
+
+
+class _Terminal(io.StringIO):
+    def isatty(self) -> bool:  # the progress bar runs only on a terminal
+        return True
+
+
+def test_progress_bar_is_fed_by_the_callbacks(root_model):
+    err = _Terminal()
+    old = os.environ.get("ADLIN_CACHE_DIR")
+    os.environ["ADLIN_CACHE_DIR"] = ""
+    try:
+        with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(err):
+            status = main(["spread", str(root_model), "--tol", "tau=1%", "-n", "8"])
+    finally:
+        if old is None:
+            os.environ.pop("ADLIN_CACHE_DIR", None)
+        else:
+            os.environ["ADLIN_CACHE_DIR"] = old
+    assert status == 0, err.getvalue()

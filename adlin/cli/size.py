@@ -84,15 +84,15 @@ def _progress(starts: int, iterations: int, enabled: bool):
 
     total = starts * iterations
     with Progress(TextColumn("sizing"), BarColumn(),
-                  TextColumn("start {task.fields[start]} of " + str(starts)
+                  TextColumn("start {task.fields[run]} of " + str(starts)
                              + " · iteration {task.fields[iteration]} · loss {task.fields[loss]}"),
                   console=Console(stderr=True), transient=True) as bar:
-        task = bar.add_task("size", total=total, start=1, iteration=0, loss="—")
+        task = bar.add_task("size", total=total, run=1, iteration=0, loss="—")
 
         def update(start: int, iteration: int, loss: float) -> None:
             # a start that stops early jumps the bar to the next start's slot
             bar.update(task, completed=min(total, start * iterations + iteration),
-                       start=start + 1, iteration=iteration, loss=f"{float(loss):.3g}")
+                       run=start + 1, iteration=iteration, loss=f"{float(loss):.3g}")
 
         yield update
 
