@@ -46,3 +46,7 @@ from . import tolerances as tolerances
 from ._design.sweep import sweep as sweep
 from ._design.monte_carlo import monte_carlo as monte_carlo
 from ._design.batch_result import MonteCarloResult as MonteCarloResult, SweepResult as SweepResult
+from ._design.sizing import size as size
+from ._design.sizing_result import SizingResult as SizingResult
+from ._design.preferred_numbers import preferred_values as preferred_values
+from ._design.preferred_numbers import round_to_series as round_to_series
