@@ -1,9 +1,9 @@
 """Throughput: steady state + linearization + poles for many parameter samples.
 
 adlin (one jit + vmap over the batch) against the per-sample loop an engineer
-would otherwise write: scipy.optimize.root on the residual, a central
-finite-difference Jacobian, and the finite generalized eigenvalues of (A, E)
-from scipy.linalg.eigvals.  Both run in this process on the same samples of
+would otherwise write (`scipy_loop.py`): scipy.optimize.root on the residual, a
+central finite-difference Jacobian, and the finite generalized eigenvalues of
+(A, E) from scipy.linalg.eigvals.  Both run in this process on the same samples of
 the built-in demo circuit; the script prints both times and their ratio, and
 checks that the two agree on the poles.  Both start every sample from the
 nominal operating point, as in a tolerance study.
@@ -27,8 +27,7 @@ import time
 import jax
 import jax.numpy as jnp
 import numpy as np
-import scipy.linalg
-import scipy.optimize
+from scipy_loop import pole_agreement, run_baseline
 
 import adlin
 from adlin.scenarios import sensor_ldo
@@ -72,38 +71,6 @@ def run_adlin(system, P, repeat: int):
     return np.asarray(poles), np.asarray(ok), t_first, t_warm
 
 
-def run_baseline(system, P):
-    """The per-sample scipy loop (residual and charges called as jitted functions)."""
-    u = np.asarray(system.input_vector())
-    f = jax.jit(system.f)
-    q = jax.jit(system.q)
-    x_nom = np.asarray(adlin.steady_state(system).x)
-    n = system.n
-
-    def fd_jac(fun, x, h_rel=1e-6):
-        J = np.empty((n, n))
-        for j in range(n):
-            h = h_rel * max(1.0, abs(x[j]))
-            e = np.zeros(n)
-            e[j] = h
-            J[:, j] = (np.asarray(fun(x + e)) - np.asarray(fun(x - e))) / (2 * h)
-        return J
-
-    out, ok = [], []
-    t0 = time.perf_counter()
-    for p in P:
-        pj = np.asarray(p)
-        sol = scipy.optimize.root(lambda x, pj=pj: np.asarray(f(x, u, pj)), x_nom,
-                                  method="hybr", tol=1e-12)
-        x = sol.x
-        A = -fd_jac(lambda x_, pj=pj: f(x_, u, pj), x)
-        E = fd_jac(lambda x_, pj=pj: q(x_, pj), x)
-        lam = scipy.linalg.eigvals(A, E)
-        out.append(np.sort_complex(lam[np.isfinite(lam)]))
-        ok.append(sol.success)
-    return out, np.asarray(ok), time.perf_counter() - t0
-
-
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--samples", type=int, default=10_000)
@@ -136,15 +103,7 @@ def main() -> None:
     print(f"scipy loop      : {t_base_full:8.3f} s{note} ({t_base / nb * 1e3:.2f} ms per sample), "
           f"{ref_ok.sum()}/{len(ref_ok)} converged")
     # agreement on the poles where both converged (each pole matched to its nearest)
-    err, slow_err, compared = 0.0, 0.0, 0
-    for k in range(nb):
-        if ok[k] and ref_ok[k] and len(ref[k]) == poles.shape[1]:
-            rel = np.abs(poles[k][:, None] - ref[k][None, :]) / np.abs(ref[k][None, :])
-            i, j = scipy.optimize.linear_sum_assignment(rel)
-            err = max(err, float(rel[i, j].max()))
-            slow = np.abs(ref[k][j]) < 1e8
-            slow_err = max(slow_err, float(rel[i, j][slow].max()))
-            compared += 1
+    err, slow_err, compared = pole_agreement(poles, ok, ref, ref_ok)
     print(f"poles, adlin vs loop, {compared} samples: max relative difference {err:.1e} overall, "
           f"{slow_err:.1e} below 1e8 rad/s (the loop's finite differences and the QZ solve of the "
           "badly scaled pencil limit its accuracy)")

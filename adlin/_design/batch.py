@@ -81,8 +81,9 @@ def device_chunk_limit(n_unknowns: int, n_devices: int) -> int | None:
     jaxlib 0.10.2's batched CPU LAPACK kernels (LU, eigenvalues) split a large
     batch over XLA's intra-op thread pool and block a pool thread while they
     wait; when as many such calls run at once as the pool has threads, the
-    process deadlocks (DEVELOPERS.md, "Hang of batched linear algebra" and
-    "Several devices").  On one device adlin's scheduler flag keeps a
+    process deadlocks (DEVELOPERS.md, "Known limits and findings": the bullets
+    on the hang of batched linear algebra and on several CPU devices; and
+    "Batched runs on several devices and hosts").  On one device adlin's scheduler flag keeps a
     program's LAPACK calls from overlapping, but several CPU devices run their
     programs at the same time.  The split happens only above a cost of about
     batch * n^3 ~ 1e6 (measured: 15x15 solves hung at 300 per device, never at
@@ -268,15 +269,14 @@ def run_batch(
         return fn(_put(np.ascontiguousarray(block, dtype=np.float64), where), u0, p0, x0, refs)
 
     parts: list[list[np.ndarray]] = []
-    starts = list(range(0, n, size))
-    pending = launch(starts[0]) if starts else None
-    for k, start in enumerate(starts):
-        # dispatch the next chunk before reading this one, so the devices keep working
-        nxt = launch(starts[k + 1]) if k + 1 < len(starts) else None
-        got = _fetch(pending)
+    for start in range(0, n, size):
+        # One chunk at a time: a second program queued behind this one gained
+        # nothing in a measurement (0.46 against 0.43-0.5 s for 10,000 samples of
+        # the demo) and two programs' LAPACK calls must never run at once
+        # (`device_chunk_limit`).
+        got = _fetch(launch(start))
         take = min(size, n - start)
         parts.append([a[:take] for a in got])
-        pending = nxt
         if progress is not None:
             progress(start + take, n)
     x, poles, ok, status, qs, met = (np.concatenate(col) for col in zip(*parts, strict=True))
