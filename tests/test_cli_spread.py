@@ -154,6 +154,7 @@ def test_terminal_report(root_model):
     (["--tol", "a=1%", "--target", "bias:y>=1"], "unknown quantity 'y'"),
     (["--tol", "a=1%", "--set", "q=1"], "no input or parameter 'q'"),
     (["--tol", "a=100%"], "relative tolerance must be below 100 %"),
+    (["--tol", "a=1%", "--of", "gain:x"], "--of 'gain:x' is not a quantity"),
 ])
 def test_bad_input_exits_2_with_one_sentence(root_model, argv, message):
     status, out, err = run(["spread", str(root_model), *argv])
@@ -189,7 +190,8 @@ def test_photodiode_yield_of_a_damping_target_under_a_capacitance_spread(tmp_pat
     p = (c_star - lo) / (hi - lo)  # C_D uniform: P(zeta >= threshold) = P(C_D <= c_star)
     n = 600
     status, out, err = run(["spread", str(TIA), "--tol", "C_D=10%", "-n", str(n),
-                            "--target", f"damping>={threshold}", "--json"])
+                            "--target", f"damping>={threshold}", "--of", "gain:v_out/i_photo",
+                            "--of", "damping:0", "--json"])
     assert status == 0, err
     data = json.loads(out)
     assert data["failed"] == 0
@@ -199,6 +201,12 @@ def test_photodiode_yield_of_a_damping_target_under_a_capacitance_spread(tmp_pat
     tau = a0 / (2 * math.pi * gbw)
     f_nominal = math.sqrt((1 + a0) / (tau * r_f * (c_d + c_f))) / (2 * math.pi)
     assert _row(data, "pole 0 frequency")["median"] == pytest.approx(f_nominal, rel=0.01)
+    assert _row(data, "pole 0 damping")["median"] == pytest.approx(zeta(c_d, c_f, r_f, a0, gbw),
+                                                             rel=0.01)
+    # DC transimpedance -R_F A0 / (1 + A0), the same for every C_D
+    gain = _row(data, "dc gain v_out/i_photo")
+    assert gain["min"] == pytest.approx(-r_f * a0 / (1 + a0), rel=1e-9)
+    assert gain["max"] == pytest.approx(gain["min"], rel=1e-9)
 
 
 class _Terminal(io.StringIO):

@@ -7,11 +7,12 @@
 Draws every ``--tol`` name from its tolerance (uniform by default, ``:normal``
 for a normal law; ``%`` relative, else absolute with SI prefixes), solves the
 steady state, small-signal model and poles of every sample in batches, and
-prints the spread of the poles and of each ``--of`` quantity, the yield
-against the ``--target`` specs (see `adlin.cli.target_syntax`) and the first
-failed samples.  ``--plots DIR`` (or ``--figures DIR``) writes
-``pole_scatter.png`` and ``histograms.png``.  A progress bar runs on standard
-error when it is a terminal.
+prints the spread of the poles and of each ``--of`` quantity (a name,
+``gain:OUT/IN`` or ``damping:K``), the yield against the ``--target`` specs
+(see `adlin.cli.target_syntax`) and the first failed samples.  ``--plots
+DIR`` (or ``--figures DIR``) writes ``pole_scatter.png`` and
+``histograms.png``.  A progress bar runs on standard error when it is a
+terminal.
 """
 
 from __future__ import annotations
@@ -67,6 +68,32 @@ def parse_tolerances(items, system) -> dict:
     return out
 
 
+def parse_quantity(text: str):
+    """One ``--of`` item: ``NAME`` (a bias-point value), ``gain:OUT/IN`` (DC gain) or
+    ``damping:K`` (damping of pole K, counted from the slowest at the nominal point).
+
+    **Raises:** `CommandError` naming the item when it is malformed.
+    """
+    from .. import quantities as Q
+
+    body = "".join(str(text).split())
+    kind, sep, rest = body.partition(":")
+    if not sep:
+        if not body:
+            raise CommandError("--of needs a name; write e.g. --of v_out, --of gain:v_out/v_in "
+                               "or --of damping:0.")
+        return body
+    if kind == "gain":
+        out, slash, inp = rest.partition("/")
+        if slash and out and inp:
+            return Q.DCGain(out, inp)
+    elif kind == "damping" and rest.isdigit():
+        return Q.PoleDamping(int(rest))
+    raise CommandError(f"--of {text!r} is not a quantity; write a name (--of v_out), a DC gain "
+                       "(--of gain:v_out/v_in) or a pole's damping (--of damping:0, poles "
+                       "counted from the slowest).")
+
+
 @contextmanager
 def _progress(n: int, enabled: bool):
     """A rich progress bar of samples done on standard error, or a no-op callback."""
@@ -101,11 +128,12 @@ def cmd_spread(args, out=None) -> int:
         raise CommandError(f"-n {args.n}: a tolerance study needs at least 1 sample.")
     if args.chunk is not None and args.chunk < 1:
         raise CommandError(f"--chunk {args.chunk}: give a whole number of samples >= 1.")
+    of = tuple(parse_quantity(q) for q in args.of or ())
     targets = parse_targets(args.target, system)
     prepare_figure_directory(args.plots)
     with _progress(args.n, sys.stderr.isatty() and not args.json) as update:
         result = monte_carlo(system, tolerances, n=args.n, seed=args.seed, inputs=inputs,
-                             params=params, of=tuple(args.of or ()), targets=targets,
+                             params=params, of=of, targets=targets,
                              chunk=args.chunk, progress=update)
     summary = summarize_spread(system, result)
     figures: list[Path] = []
@@ -150,7 +178,8 @@ def add_spread_command(sub, base: argparse.ArgumentParser) -> None:
     spread.add_argument("--seed", type=int, default=0, metavar="N",
                         help="seed of the random draws (default 0); same seed, same samples")
     spread.add_argument("--of", action="append", metavar="NAME",
-                        help="unknown or output whose spread to report (repeatable)")
+                        help="quantity whose spread to report (repeatable): an unknown or output "
+                        "name, gain:OUT/IN (DC gain) or damping:K (pole K, slowest first)")
     spread.add_argument("--target", action="append", metavar="SPEC",
                         help=f"target for the yield (repeatable): {FORMS.replace('%', '%%')}")
     spread.add_argument("--chunk", type=int, metavar="N",
