@@ -206,7 +206,8 @@ def build_parser() -> argparse.ArgumentParser:
         "--json", action="store_true", help="print the report as JSON instead of tables"
     )
     base.add_argument(
-        "--plots", metavar="DIR", help="write bode.png and poles_zeros.png into DIR"
+        "--plots", metavar="DIR",
+        help="write the command's PNG figures into DIR (created if missing; the report lists them)"
     )
     common = argparse.ArgumentParser(add_help=False, parents=[base])
     common.add_argument(
