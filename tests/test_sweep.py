@@ -115,3 +115,15 @@ def test_errors_name_the_culprit():
         adlin.sweep(s, {"R": [1e3]}, of=["v_b"])
     with pytest.raises(adlin.ParameterError, match="grid="):
         adlin.sweep(s, {})
+
+
+def test_traced_values_are_refused_with_a_clear_error():
+    import jax
+
+    def f(r):
+        return adlin.sweep(low_pass(), {"R": r}).x
+
+    with pytest.raises(adlin.AnalysisError, match="concrete values"):
+        jax.jit(f)(jnp.array([1e3, 2e3]))
+    with pytest.raises(adlin.AnalysisError, match="concrete values"):
+        jax.grad(lambda c: adlin.sweep(low_pass(), {"R": [1e3]}, params={"C": c}).n)(1e-6)

@@ -56,6 +56,16 @@ def status_message(code: int) -> str:
     return REASON_MESSAGES.get(int(code), f"status {int(code)}")
 
 
+def refuse_traced(what: str, *values) -> None:
+    """Raise `AnalysisError` when called under jit, vmap or grad (a host-side driver)."""
+    from .._steady.solve import _is_traced
+
+    if _is_traced(*values):
+        raise AnalysisError(f"{what}() runs batches from the host and takes concrete values; "
+                            "inside jit, vmap or grad use jax.vmap over adlin.steady_state(..., "
+                            "strategy='newton') and adlin.linearize instead.")
+
+
 def resolve_names(system: System, names: Sequence[str], what: str) -> tuple[tuple[int, ...],
                                                                              tuple[int, ...]]:
     """Index of each name among the parameters (-1: an input) and the inputs (-1: a parameter).
@@ -234,6 +244,7 @@ def run_batch(
 
     if not isinstance(system, System):
         raise ModelError(f"{what}() needs an adlin.System, got {type(system).__name__}.")
+    refuse_traced(what, inputs, params)
     pidx, uidx = resolve_names(system, names, what)
     if isinstance(of, (str, AbstractQuantity)):
         of = (of,)

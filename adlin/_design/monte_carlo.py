@@ -11,7 +11,7 @@ import numpy as np
 
 from .._errors import ModelError, ParameterError
 from .._system import System
-from .batch import resolve_names, run_batch
+from .batch import refuse_traced, resolve_names, run_batch
 from .batch_result import BatchResult, MonteCarloResult
 from .quantities import AbstractQuantity
 from .tolerances import AbstractTolerance, as_tolerance
@@ -90,6 +90,7 @@ def monte_carlo(
         raise ParameterError(f"monte_carlo() needs n >= 1 samples (a whole number), got {n!r}.")
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)):
         raise ParameterError(f"seed must be an integer, got {seed!r}.")
+    refuse_traced("monte_carlo", inputs, params)
     names = tuple(tolerances)
     resolve_names(system, names, "tolerances")
     specs = {k: as_tolerance(k, v) for k, v in tolerances.items()}

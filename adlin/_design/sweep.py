@@ -8,7 +8,7 @@ from typing import Any
 import numpy as np
 
 from .._errors import ParameterError
-from .batch import run_batch
+from .batch import refuse_traced, run_batch
 from .batch_result import BatchResult, SweepResult
 from .quantities import AbstractQuantity
 
@@ -19,6 +19,7 @@ def _grid_values(grid: Mapping[str, Any], product: bool) -> tuple[tuple[str, ...
         raise ParameterError("sweep() needs grid={name: values, ...} naming at least one "
                              "parameter or input.")
     names = tuple(grid)
+    refuse_traced("sweep", dict(grid))
     cols = []
     for name in names:
         try:
