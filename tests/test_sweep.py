@@ -15,6 +15,8 @@ import functools
 import jax.numpy as jnp
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 import adlin
 
@@ -127,3 +129,17 @@ def test_traced_values_are_refused_with_a_clear_error():
         jax.jit(f)(jnp.array([1e3, 2e3]))
     with pytest.raises(adlin.AnalysisError, match="concrete values"):
         jax.grad(lambda c: adlin.sweep(low_pass(), {"R": [1e3]}, params={"C": c}).n)(1e-6)
+
+
+_decades = st.floats(min_value=-1.0, max_value=1.0)
+
+
+@settings(max_examples=15, deadline=None)
+@given(st.lists(st.tuples(_decades, _decades), min_size=8, max_size=8))
+def test_zipped_pole_law_over_random_values(points):
+    # R from 100 ohm to 10 kohm and C from 0.1 uF to 10 uF, log-uniform; 8 points each run
+    # reuse one compiled chunk.  tau = (R + R_src) C (Alexander & Sadiku, 5th ed., 7.2).
+    R = 1e3 * 10.0 ** np.array([a for a, _ in points])
+    C = 1e-6 * 10.0 ** np.array([b for _, b in points])
+    r = adlin.sweep(low_pass(), {"R": R, "C": C}, product=False)
+    np.testing.assert_allclose(np.asarray(r.poles)[:, 0].real, -1 / ((R + R_SRC) * C), rtol=1e-11)
