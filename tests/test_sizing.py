@@ -172,6 +172,33 @@ def test_sizing_r2_for_a_bandwidth():
     assert bool(res.met)
 
 
+# --- trial points without a steady state -------------------------------------------------
+@functools.cache
+def fold():
+    """dx/dt = a - 1 - x^2: a steady state x* = sqrt(a - 1) only for a >= 1 (a
+    saddle-node at a = 1), with the pole f'(x*) = -2 sqrt(a - 1) (Strogatz, Nonlinear
+    Dynamics and Chaos, 2nd ed., sec. 3.1 and 2.4 on linear stability; from memory)."""
+
+    def h(x, u, p):
+        return jnp.stack([p["a"] - 1.0 - x[0] ** 2])
+
+    return adlin.System.from_ode(h, states=("x",), inputs=(), outputs=("x",),
+                                 params={"a": 5.0}, name="fold")
+
+
+def test_trial_points_without_steady_state_are_survived():
+    # a pole at -0.2 rad/s needs a = 1 + 0.1^2 = 1.01, just beside the region a < 1
+    # where there is no steady state; the first steps from a = 5 land there
+    res = adlin.size(fold(), {"a": (0.01, 100.0)}, adlin.targets.RealPole(0.2 / (2 * math.pi)),
+                     starts=1)
+    assert res.failed_evaluations > 0
+    np.testing.assert_allclose(float(res.values[0]), 1.01, rtol=1e-8)
+    assert bool(res.met)
+    n = int(res.history_length[0])
+    assert np.all(np.isfinite(np.asarray(res.loss_history[0, :n])))
+    assert np.all(np.isfinite(np.asarray(res.pole_history[:n])))
+
+
 # --- errors ------------------------------------------------------------------------------
 def test_unknown_free_name():
     with pytest.raises(adlin.ParameterError, match=r"'Rr'.*closest valid name is 'R'"):

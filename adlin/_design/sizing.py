@@ -27,8 +27,9 @@ from .targets import as_targets, evaluate, total_loss, validate
 # which stops while the design is still ~1e-3 off.
 F_TOL = 1e-15
 PG_TOL = 1e-12  # projected gradient, in loss per unit of log(value)
-# The loss seen by the optimizer where no steady state is found: large and
-# finite, with a zero gradient, so the line search backs off (never NaN).
+RESTARTS = 3  # fresh L-BFGS-B runs from the best point after an abandoned line search
+# Curvature (per unit of loss) of the bowl that stands in for the loss where no
+# steady state is found (see `_Objective`): large, so the line search backs off.
 FAILED_LOSS_FLOOR = 1e6
 
 _TRACES = [0]  # how many times a sizing program was traced (read by the tests)
@@ -78,7 +79,15 @@ def _program(compiled, free_index: tuple[int, ...], targets: tuple[AbstractTarge
 
 class _Objective:
     """Host-side objective for scipy: counts evaluations, warm-starts Newton from the
-    last converged point, and turns a failed steady state into a large finite loss."""
+    last converged point, and stands in for the loss where no steady state is found.
+
+    At such a trial point the loss is continued from the last good point g0 (loss
+    f0, gradient g) as f0 + g.d + M |d|^2, d = log-values minus g0's, with M large:
+    a steep bowl, finite and continuous in value and slope with the true loss at
+    g0, so the line search backs off toward the region where the circuit has a
+    bias point instead of meeting a cliff (a constant with zero gradient made
+    L-BFGS-B stop with an abnormal line search in a test).
+    """
 
     def __init__(self, compiled, program, p_base, free_index, u, x_start):
         self.compiled, self.program = compiled, program
@@ -90,8 +99,9 @@ class _Objective:
         self.x_warm = x_start
         self.evaluations = 0
         self.failed = 0
-        self.worst = 0.0
-        self.last: tuple[np.ndarray, float, np.ndarray] | None = None
+        self.good: tuple[np.ndarray, float, np.ndarray] | None = None  # last good (lv, f, g)
+        self.best: tuple[np.ndarray, float] | None = None  # lowest loss seen (lv, f)
+        self.last: tuple[np.ndarray, float, np.ndarray] | None = None  # ... with its poles
 
     def _solve(self, p):
         op = self.compiled.solve(self.u, p, self.x_warm)
@@ -110,14 +120,22 @@ class _Objective:
             loss, grad = float(loss), np.asarray(grad, dtype=float)
             if math.isfinite(loss) and bool(np.all(np.isfinite(grad))):
                 self.x_warm = op.x
-                self.worst = max(self.worst, loss)
+                self.good = (lv, loss, grad)
+                if self.best is None or loss < self.best[1]:
+                    self.best = (lv, loss)
                 self.last = (lv, loss, np.asarray(poles))
                 return loss, grad
         self.failed += 1
-        return self.penalty(), np.zeros(len(self.idx))
+        return self.penalty(lv)
 
-    def penalty(self) -> float:
-        return max(FAILED_LOSS_FLOOR, 1e3 * self.worst)
+    def penalty(self, lv):
+        """(loss, gradient) where no steady state was found: see the class docstring."""
+        if self.good is None:
+            return FAILED_LOSS_FLOOR, np.zeros(len(self.idx))
+        lv0, f0, g0 = self.good
+        d = np.asarray(lv, dtype=float) - lv0
+        m = FAILED_LOSS_FLOOR * (1.0 + f0)
+        return f0 + float(g0 @ d) + m * float(d @ d), g0 + 2 * m * d
 
     def at(self, lv):
         """(loss, poles) at an iterate: the last evaluation is almost always there."""
@@ -125,7 +143,7 @@ class _Objective:
         if self.last is None or not np.array_equal(self.last[0], lv):
             self(lv)
         if self.last is None or not np.array_equal(self.last[0], lv):
-            return self.penalty(), None
+            return self.penalty(lv)[0], None
         return self.last[1], self.last[2]
 
 
@@ -206,19 +224,32 @@ def _run_start(objective: _Objective, lv0, lo, hi, max_iterations, start, progre
         if progress is not None:
             progress(start, len(losses) - 1, loss)
 
-    res = scipy.optimize.minimize(
-        objective, lv0, jac=True, method="L-BFGS-B", bounds=list(zip(lo, hi, strict=True)),
-        callback=callback,
-        options={"maxiter": max_iterations, "maxfun": 20 * max_iterations,
-                 "ftol": F_TOL, "gtol": PG_TOL},
-    )
-    lv = np.clip(np.asarray(res.x, dtype=float), lo, hi)
-    final, poles = objective.at(lv)
-    if not np.array_equal(lv, np.log(path[-1])):
-        losses.append(final)
-        path.append(np.exp(lv))
-        pole_path.append(poles)
-    return lv, final, losses, path, pole_path, str(res.message)
+    lv, final, message = lv0, loss0, ""
+    for _ in range(1 + RESTARTS):
+        left = max_iterations - (len(losses) - 1)
+        if left < 1:
+            break
+        res = scipy.optimize.minimize(
+            objective, lv, jac=True, method="L-BFGS-B", bounds=list(zip(lo, hi, strict=True)),
+            callback=callback,
+            options={"maxiter": left, "maxfun": 20 * left, "ftol": F_TOL, "gtol": PG_TOL},
+        )
+        message = str(res.message)
+        lv = np.clip(np.asarray(res.x, dtype=float), lo, hi)
+        final, poles = objective.at(lv)
+        if objective.best is not None and objective.best[1] < final:
+            # a trial point of an abandoned line search was better than the last iterate
+            lv = objective.best[0]
+            final, poles = objective.at(lv)
+        if not np.array_equal(lv, np.log(path[-1])):
+            losses.append(final)
+            path.append(np.exp(lv))
+            pole_path.append(poles)
+        # An abandoned line search (typically next to a region without a steady
+        # state) leaves a poor curvature estimate: start afresh from the best point.
+        if res.success or final == 0.0:
+            break
+    return lv, final, losses, path, pole_path, message
 
 
 def _pad(rows: list, m: int) -> list:
@@ -246,9 +277,11 @@ def size(
     algorithm for bound constrained optimization", SIAM J. Sci. Comput. 16(5),
     1995) from scipy.optimize, fed exact gradients by JAX.  scipy rather than
     optimistix: L-BFGS-B handles box bounds exactly (projected steps), which
-    optimistix 0.1.0 does not offer, and the host loop lets a failed steady
-    state become a large finite loss with a zero gradient, so the line
-    search backs off and no NaN reaches the optimizer.  Log values make the
+    optimistix 0.1.0 does not offer, and the host loop can stand in for the
+    loss where a trial point has no steady state (a steep quadratic bowl
+    continued from the last good point, so the line search backs off and no
+    NaN reaches the optimizer; after an abandoned line search the optimizer
+    restarts from the best point seen, up to `RESTARTS` times).  Log values make the
     search scale-free (a resistor in ohms and a capacitor in farads take
     comparable steps) and keep values positive.
 

@@ -35,7 +35,7 @@ class SizingResult(eqx.Module):
       break a tight target: read `rounded_met`).
     - `evaluations`: loss-and-gradient evaluations over all starts;
       `failed_evaluations`: those at which the steady state was not found
-      (the optimizer saw a large loss and backed off).
+      (the optimizer saw a steep bowl there and backed off).
     - `message`: the optimizer's stop reason for the best start;
       `start_messages` the reason of every start.
     """
