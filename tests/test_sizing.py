@@ -241,6 +241,18 @@ def test_bad_options(kwargs, match):
         adlin.size(rlc(), {"R": (1.0, 10.0)}, MinDamping(0.5), **kwargs)
 
 
+def test_regulator_example_is_a_model_file():
+    # examples/ldo_compensation.py doubles as a model file for `adlin size`
+    from pathlib import Path
+
+    from adlin.cli.model_file import load_model
+
+    path = Path(__file__).resolve().parents[1] / "examples" / "ldo_compensation.py"
+    model = load_model(path)
+    assert model.label.endswith(":regulator") and model.circuit is not None
+    assert {"C_out", "R_esr", "R_load"} <= set(model.system.param_names)
+
+
 def test_not_a_system():
     with pytest.raises(adlin.ModelError, match="System"):
         adlin.size(object(), {"R": (1.0, 10.0)}, MinDamping(0.5))

@@ -294,7 +294,9 @@ def size(
     arguments, so new bounds or starts never retrace.  Start 0 is the
     nominal design clipped into the bounds; the others are drawn
     log-uniformly inside the bounds from `seed`.  The start with the
-    smallest final loss gives the result.
+    smallest final loss gives the result.  The search loop runs on the host
+    (scipy), so `size` itself is not for use inside `jax.jit`; the losses it
+    minimizes are (`adlin.targets.total_loss`).
 
     **Arguments:**
 
