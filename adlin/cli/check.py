@@ -15,18 +15,17 @@ from __future__ import annotations
 import argparse
 import sys
 from contextlib import contextmanager
-from pathlib import Path
 
 import numpy as np
 
 from .options import (
     CommandError,
+    emit_report,
     parse_assignments,
     parse_number,
     parse_option_number,
     prepare_figure_directory,
     split_settings,
-    write_figures_into,
 )
 
 # Distortion is shown at these fractions of the smallest linear-range limit.
@@ -171,26 +170,9 @@ def cmd_check(args, out=None) -> int:
         output_unit=system.unit(out_name), bias_input=float(op[inp]),
         bias_output=float(op[out_name]), tol=tol, ranges=ranges, distortion=result,
         waveforms=waves, notes=notes)
-    figures: list[Path] = []
-    if args.plots:
-        from ..report.trust_figures import write_check_figures
-
-        figures = write_figures_into(args.plots, lambda d: write_check_figures(summary, d))
-    if args.json:
-        import json
-
-        data = check_to_dict(summary)
-        data["figures"] = [str(p) for p in figures]
-        out.write(json.dumps(data, indent=2, allow_nan=False) + "\n")
-    else:
-        from ..report.text import make_console
-        from ..report.trust_text import render_check
-
-        console = make_console(out)
-        render_check(summary, console)
-        if figures:
-            console.print("Figures: " + ", ".join(str(p) for p in figures))
-    return 0
+    return emit_report(args, out, summary, to_dict=check_to_dict,
+                       text="trust_text:render_check",
+                       figures="trust_figures:write_check_figures")
 
 
 def add_check_command(sub, common: argparse.ArgumentParser) -> None:

@@ -34,11 +34,11 @@ from pathlib import Path
 from .options import (
     CommandError,
     _check_choice,
+    emit_report,
     parse_assignments,
     parse_number,
     prepare_figure_directory,
     split_settings,
-    write_figures_into,
 )
 
 # parse_* and CommandError are re-exported: tests and subcommands import them from here
@@ -128,27 +128,10 @@ def analyze_and_report(system, circuit, args, *, guess=None, notes_for=None, out
     )
     if args.states == "search":
         summary.states = search_states(system, inputs, params, op)
-    figures: list[Path] = []
-    if args.plots:
-        from ..report.figures import write_figures
+    from ..report.json import to_dict
 
-        figures = write_figures_into(args.plots, lambda d: write_figures(summary, d))
-    if args.json:
-        import json
-
-        from ..report.json import to_dict
-
-        data = to_dict(summary)
-        data["figures"] = [str(p) for p in figures]
-        out.write(json.dumps(data, indent=2, allow_nan=False) + "\n")
-    else:
-        from ..report.text import make_console, render
-
-        console = make_console(out)
-        render(summary, console)
-        if figures:
-            console.print("Figures: " + ", ".join(str(p) for p in figures))
-    return 0
+    return emit_report(args, out, summary, to_dict=to_dict, text="text:render",
+                       figures="figures:write_figures")
 
 
 def search_states(system, inputs, params, op):

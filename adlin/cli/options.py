@@ -129,6 +129,39 @@ def write_figures_into(directory: str, write):
             "writable directory with --plots DIR.") from err
 
 
+def emit_report(args, out, summary, *, to_dict, text: str, figures: str | None) -> int:
+    """Write a command's figures (with ``--plots``), then print its report as text or JSON.
+
+    `text` and `figures` name "module:function" in `adlin.report`, imported only
+    when used (matplotlib is slow to import); the figure writer returns one
+    path or a list of them.  `figures` None writes none.  Returns exit status 0.
+    """
+    import importlib
+
+    def load(where: str):
+        module, function = where.split(":")
+        return getattr(importlib.import_module(f"adlin.report.{module}"), function)
+
+    written = []
+    if args.plots and figures:
+        paths = write_figures_into(args.plots, lambda d: load(figures)(summary, d))
+        written = [paths] if paths and not isinstance(paths, list) else list(paths or [])
+    if args.json:
+        import json
+
+        data = to_dict(summary)
+        data["figures"] = [str(p) for p in written]
+        out.write(json.dumps(data, indent=2, allow_nan=False) + "\n")
+    else:
+        from ..report.text import make_console
+
+        console = make_console(out)
+        load(text)(summary, console)
+        if written:
+            console.print("Figures: " + ", ".join(str(p) for p in written))
+    return 0
+
+
 def parse_option_number(option: str, text: str) -> float:
     """The value of a numeric option such as ``--from 10k``.
 

@@ -19,14 +19,13 @@ from __future__ import annotations
 import argparse
 import sys
 from contextlib import contextmanager
-from pathlib import Path
 
 from .options import (
     CommandError,
+    emit_report,
     parse_assignments,
     prepare_figure_directory,
     split_settings,
-    write_figures_into,
 )
 from .target_syntax import FORMS, parse_range, parse_targets
 
@@ -122,26 +121,9 @@ def cmd_size(args, out=None) -> int:
                       seed=args.seed, round_to=args.round, max_iterations=args.iterations,
                       progress=update)
     summary = summarize_sizing(system, result)
-    figures: list[Path] = []
-    if args.plots:
-        from ..report.sizing_figures import write_sizing_figures
-
-        figures = write_figures_into(args.plots, lambda d: write_sizing_figures(summary, d))
-    if args.json:
-        import json
-
-        data = sizing_to_dict(summary)
-        data["figures"] = [str(p) for p in figures]
-        out.write(json.dumps(data, indent=2, allow_nan=False) + "\n")
-    else:
-        from ..report.sizing_text import render_sizing
-        from ..report.text import make_console
-
-        console = make_console(out)
-        render_sizing(summary, console)
-        if figures:
-            console.print("Figures: " + ", ".join(str(p) for p in figures))
-    return 0
+    return emit_report(args, out, summary, to_dict=sizing_to_dict,
+                       text="sizing_text:render_sizing",
+                       figures="sizing_figures:write_sizing_figures")
 
 
 def add_size_command(sub, base: argparse.ArgumentParser) -> None:

@@ -20,14 +20,13 @@ from __future__ import annotations
 import argparse
 import sys
 from contextlib import contextmanager
-from pathlib import Path
 
 from .options import (
     CommandError,
+    emit_report,
     parse_assignments,
     prepare_figure_directory,
     split_settings,
-    write_figures_into,
 )
 from .target_syntax import FORMS, parse_targets
 
@@ -136,26 +135,9 @@ def cmd_spread(args, out=None) -> int:
                              params=params, of=of, targets=targets,
                              chunk=args.chunk, progress=update)
     summary = summarize_spread(system, result)
-    figures: list[Path] = []
-    if args.plots:
-        from ..report.spread_figures import write_spread_figures
-
-        figures = write_figures_into(args.plots, lambda d: write_spread_figures(summary, d))
-    if args.json:
-        import json
-
-        data = spread_to_dict(summary)
-        data["figures"] = [str(p) for p in figures]
-        out.write(json.dumps(data, indent=2, allow_nan=False) + "\n")
-    else:
-        from ..report.spread_text import render_spread
-        from ..report.text import make_console
-
-        console = make_console(out)
-        render_spread(summary, console)
-        if figures:
-            console.print("Figures: " + ", ".join(str(p) for p in figures))
-    return 0
+    return emit_report(args, out, summary, to_dict=spread_to_dict,
+                       text="spread_text:render_spread",
+                       figures="spread_figures:write_spread_figures")
 
 
 def add_spread_command(sub, base: argparse.ArgumentParser) -> None:

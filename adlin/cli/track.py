@@ -17,11 +17,11 @@ from contextlib import contextmanager
 
 from .options import (
     CommandError,
+    emit_report,
     parse_assignments,
     parse_option_number,
     prepare_figure_directory,
     split_settings,
-    write_figures_into,
 )
 
 
@@ -69,26 +69,10 @@ def cmd_track(args, out=None) -> int:
                        progress=update)
     summary = summarize_branch(system, branch, args.show, inputs=inputs, params=params,
                                start=start, stop=stop)
-    figure = None
-    if args.plots and len(summary.values):
-        from ..report.branch_figure import write_branch_figure
-
-        figure = write_figures_into(args.plots, lambda d: write_branch_figure(summary, d))
-    if args.json:
-        import json
-
-        data = branch_to_dict(summary)
-        data["figures"] = [str(figure)] if figure else []
-        out.write(json.dumps(data, indent=2, allow_nan=False) + "\n")
-    else:
-        from ..report.branch_text import render_branch
-        from ..report.text import make_console
-
-        console = make_console(out)
-        render_branch(summary, console)
-        if figure:
-            console.print(f"Figure: {figure}")
-    return 0
+    return emit_report(args, out, summary, to_dict=branch_to_dict,
+                       text="branch_text:render_branch",
+                       figures="branch_figure:write_branch_figure" if len(summary.values)
+                       else None)
 
 
 def add_track_command(sub, base: argparse.ArgumentParser) -> None:
