@@ -31,7 +31,7 @@ from jax.sharding import AxisType, NamedSharding, PartitionSpec
 from .._errors import AnalysisError, ModelError, ParameterError, did_you_mean
 from .._steady.strategies.reasons import REASON_MESSAGES
 from .._system import System
-from .quantities import AbstractQuantity, as_quantity
+from .quantities import AbstractQuantity, resolve_quantities
 from .sensitivities import COALESCE_RTOL, _pole_refs
 from .targets import as_targets
 
@@ -246,15 +246,8 @@ def run_batch(
         raise ModelError(f"{what}() needs an adlin.System, got {type(system).__name__}.")
     refuse_traced(what, inputs, params)
     pidx, uidx = resolve_names(system, names, what)
-    if isinstance(of, (str, AbstractQuantity)):
-        of = (of,)
-    quantities = tuple(as_quantity(q) for q in of)
+    quantities = resolve_quantities(of, system)
     labels = [q.label() for q in quantities]
-    dup = sorted({x for x in labels if labels.count(x) > 1})
-    if dup:
-        raise AnalysisError(f"of=[...] lists {dup[0]!r} twice; give each quantity once.")
-    for q in quantities:
-        q.validate(system)
     targets = as_targets(targets)
     for t in targets:
         t.validate(system)

@@ -293,3 +293,21 @@ def as_quantity(q) -> AbstractQuantity:
         return Bias(q)
     raise ParameterError(f"of=[...] takes quantities (adlin.sensitivities quantities such as "
                          f"Bias, DCGain, Pole) or names of unknowns/outputs, got {q!r}.")
+
+
+def resolve_quantities(of, system: System) -> tuple[AbstractQuantity, ...]:
+    """The `of=[...]` argument as checked quantity objects (one, or a sequence).
+
+    **Raises:** `ParameterError` for an entry that is not a quantity or a name,
+    or a name the model lacks; `AnalysisError` for a quantity listed twice.
+    """
+    if isinstance(of, (str, AbstractQuantity)):
+        of = (of,)
+    quantities = tuple(as_quantity(q) for q in of)
+    labels = [q.label() for q in quantities]
+    dup = sorted({x for x in labels if labels.count(x) > 1})
+    if dup:
+        raise AnalysisError(f"of=[...] lists {dup[0]!r} twice; give each quantity once.")
+    for q in quantities:
+        q.validate(system)
+    return quantities

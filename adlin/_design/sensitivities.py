@@ -14,7 +14,7 @@ import numpy as np
 
 from .._errors import AnalysisError, ModelError, ParameterError, did_you_mean
 from .._system import System
-from .quantities import AbstractQuantity, as_quantity
+from .quantities import AbstractQuantity, resolve_quantities
 from .sensitivity_table import Sensitivities, coalescing, normalize_rows
 
 # Relative separation below which two poles count as one repeated pole: their
@@ -168,18 +168,11 @@ def sensitivities(
 
     if not isinstance(system, System):
         raise ModelError(f"sensitivities() needs an adlin.System, got {type(system).__name__}.")
-    if isinstance(of, (str, AbstractQuantity)):
-        of = (of,)
-    quantities = tuple(as_quantity(q) for q in of)
+    quantities = resolve_quantities(of, system)
+    labels = [q.label() for q in quantities]
     if not quantities:
         raise AnalysisError("sensitivities() needs of=[...]: names of unknowns or outputs, or "
                             "quantities such as DCGain(output, input) or Pole(0).")
-    labels = [q.label() for q in quantities]
-    dup = sorted({x for x in labels if labels.count(x) > 1})
-    if dup:
-        raise AnalysisError(f"of=[...] lists {dup[0]!r} twice; give each quantity once.")
-    for q in quantities:
-        q.validate(system)
     names = _wrt_names(system, wrt)
     if _is_traced(inputs, params, guess):
         raise AnalysisError("sensitivities() takes concrete values; under jit or grad "
