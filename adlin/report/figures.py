@@ -303,3 +303,28 @@ def write_figures(summary: Summary, directory: str | Path) -> list[Path]:
     pole_zero_figure(summary).savefig(path, facecolor="white")
     paths.append(path)
     return paths
+
+
+def s_plane_frame(ax, prefix: str) -> None:
+    """Axes of an s-plane plot: origin in view, right half-plane shaded, labelled axes."""
+    x_lo, x_hi = ax.get_xlim()
+    span = max(abs(x_lo), abs(x_hi), 1e-30)
+    ax.set_xlim(min(x_lo, -0.05 * span), max(x_hi, 0.08 * span))
+    ax.axvspan(0, ax.get_xlim()[1], color=RHP_SHADE, zorder=0, linewidth=0)
+    ax.axvline(0, color="#8b8f98", linewidth=0.8)
+    ax.axhline(0, color="#8b8f98", linewidth=0.8)
+    ax.set_xlabel(f"real part [{prefix}rad/s]")
+    ax.set_ylabel(f"imaginary part [{prefix}rad/s]")
+
+
+def save_figures(directory, named) -> list:
+    """Draw and save each (file name, figure function) into `directory`; returns the paths."""
+    from pathlib import Path
+
+    out = Path(directory)
+    out.mkdir(parents=True, exist_ok=True)
+    paths = []
+    for name, draw in named:
+        draw().savefig(out / name, facecolor="white")
+        paths.append(out / name)
+    return paths

@@ -15,7 +15,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .figures import PALETTE, RHP_SHADE, TEXT, _style
+from .figures import PALETTE, TEXT, _style, s_plane_frame, save_figures
 from .sizing import SizingSummary
 
 LOSS_FILE = "loss_history.png"
@@ -93,14 +93,7 @@ def pole_path_figure(s: SizingSummary):
                 label="start", zorder=4)
         ax.plot(last.real, last.imag, linestyle="none", marker="D", markersize=7,
                 color=PALETTE[1], markeredgecolor=TEXT, label="sized", zorder=5)
-    x_lo, x_hi = ax.get_xlim()
-    span = max(abs(x_lo), abs(x_hi), 1e-30)
-    ax.set_xlim(min(x_lo, -0.05 * span), max(x_hi, 0.08 * span))
-    ax.axvspan(0, ax.get_xlim()[1], color=RHP_SHADE, zorder=0, linewidth=0)
-    ax.axvline(0, color="#8b8f98", linewidth=0.8)
-    ax.axhline(0, color="#8b8f98", linewidth=0.8)
-    ax.set_xlabel(f"real part [{prefix}rad/s]")
-    ax.set_ylabel(f"imaginary part [{prefix}rad/s]")
+    s_plane_frame(ax, prefix)
     ax.legend(frameon=False, fontsize=8.5, labelcolor=TEXT, loc="best")
     fig.suptitle(f"{s.name}: poles of the best start, pale = first iteration", color=TEXT,
                  fontsize=11, x=0.01, ha="left")
@@ -109,9 +102,5 @@ def pole_path_figure(s: SizingSummary):
 
 def write_sizing_figures(s: SizingSummary, directory: str | Path) -> list[Path]:
     """Write ``loss_history.png`` and ``pole_path.png`` into `directory`; returns the paths."""
-    out = Path(directory)
-    out.mkdir(parents=True, exist_ok=True)
-    paths = [out / LOSS_FILE, out / POLE_PATH_FILE]
-    loss_figure(s).savefig(paths[0], facecolor="white")
-    pole_path_figure(s).savefig(paths[1], facecolor="white")
-    return paths
+    return save_figures(directory, [(LOSS_FILE, lambda: loss_figure(s)),
+                                    (POLE_PATH_FILE, lambda: pole_path_figure(s))])

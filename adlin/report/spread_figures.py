@@ -17,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .figures import PALETTE, RHP_SHADE, TEXT, _style
+from .figures import PALETTE, TEXT, _style, s_plane_frame, save_figures
 from .sizing_figures import rate_scale
 from .spread import SpreadSummary
 
@@ -52,14 +52,7 @@ def pole_scatter_figure(s: SpreadSummary):
         ax.plot(centre.real, centre.imag, marker="+", markersize=11, markeredgewidth=1.6,
                 color=TEXT, linestyle="none", zorder=3,
                 label="median of each pole" if j == 0 else None)
-    x_lo, x_hi = ax.get_xlim()
-    span = max(abs(x_lo), abs(x_hi), 1e-30)
-    ax.set_xlim(min(x_lo, -0.05 * span), max(x_hi, 0.08 * span))
-    ax.axvspan(0, ax.get_xlim()[1], color=RHP_SHADE, zorder=0, linewidth=0)
-    ax.axvline(0, color="#8b8f98", linewidth=0.8)
-    ax.axhline(0, color="#8b8f98", linewidth=0.8)
-    ax.set_xlabel(f"real part [{prefix}rad/s]")
-    ax.set_ylabel(f"imaginary part [{prefix}rad/s]")
+    s_plane_frame(ax, prefix)
     if poles.size:
         ax.legend(frameon=False, fontsize=8.5, labelcolor=TEXT, loc="best")
     fig.suptitle(f"{s.name}: poles of {poles.shape[0] if poles.ndim == 2 else 0} samples",
@@ -116,9 +109,5 @@ def histogram_figure(s: SpreadSummary):
 
 def write_spread_figures(s: SpreadSummary, directory: str | Path) -> list[Path]:
     """Write ``pole_scatter.png`` and ``histograms.png`` into `directory`; returns the paths."""
-    out = Path(directory)
-    out.mkdir(parents=True, exist_ok=True)
-    paths = [out / SCATTER_FILE, out / HISTOGRAM_FILE]
-    pole_scatter_figure(s).savefig(paths[0], facecolor="white")
-    histogram_figure(s).savefig(paths[1], facecolor="white")
-    return paths
+    return save_figures(directory, [(SCATTER_FILE, lambda: pole_scatter_figure(s)),
+                                    (HISTOGRAM_FILE, lambda: histogram_figure(s))])
