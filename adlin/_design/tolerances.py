@@ -15,13 +15,13 @@ from __future__ import annotations
 
 import abc
 import math
-import re
 
 import equinox as eqx
 import jax
 import jax.numpy as jnp
 
 from .._errors import ParameterError
+from .._units import parse_number
 from .target_base import as_float
 
 
@@ -123,12 +123,6 @@ class Normal(AbstractTolerance):
         return f"{self._amount()} normal (one standard deviation)"
 
 
-_PREFIX = {"T": 1e12, "G": 1e9, "M": 1e6, "k": 1e3, "m": 1e-3, "u": 1e-6, "µ": 1e-6,
-           "n": 1e-9, "p": 1e-12, "f": 1e-15}
-_TEXT = re.compile(r"^\s*((?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(%|[TGMkmuµnpf]?)\s*"
-                   r"(?::\s*(uniform|normal)\s*)?$", re.IGNORECASE)
-
-
 def parse(text: str) -> AbstractTolerance:
     """A tolerance from text: "1%" (uniform +-1 %), "0.5%:normal" (sigma 0.5 %),
     "2m" (uniform +-2e-3), "2m:normal" (sigma 2e-3), ":uniform" may be written out.
@@ -141,17 +135,21 @@ def parse(text: str) -> AbstractTolerance:
 
     **Raises:** `ParameterError` naming the text when it does not read as a tolerance.
     """
-    m = _TEXT.match(str(text))
-    if not m or (m.group(2) and m.group(2) not in _PREFIX and m.group(2) != "%"):
+    body, _, law = str(text).partition(":")
+    law = law.strip().lower() or "uniform"
+    body = body.strip()
+    try:
+        if law not in ("uniform", "normal"):
+            raise ValueError(law)
+        relative = body.endswith("%")
+        value = parse_number(body[:-1] if relative else body)
+    except ValueError:
         raise ParameterError(f"tolerance {text!r} is not understood; write a relative one like "
                              "'1%' or '0.5%:normal', or an absolute one like '2m' or "
-                             "'2m:normal' (SI prefixes T G M k m u n p f).")
-    value, unit, law = float(m.group(1)), m.group(2), (m.group(3) or "uniform").lower()
+                             "'2m:normal' (SI prefixes T G M k m u n p f).") from None
     cls = Normal if law == "normal" else Uniform
     try:
-        if unit == "%":
-            return cls(rel=value / 100.0)
-        return cls(abs=value * _PREFIX.get(unit, 1.0))
+        return cls(rel=value / 100.0) if relative else cls(abs=value)
     except ParameterError as err:
         raise ParameterError(f"tolerance {text!r}: {err}") from None
 

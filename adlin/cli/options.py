@@ -6,23 +6,9 @@ the entry point prints as one sentence with exit status 2.
 
 from __future__ import annotations
 
-import math
-import re
 from collections.abc import Sequence
 
-_PREFIX = {
-    "T": 1e12,
-    "G": 1e9,
-    "M": 1e6,
-    "k": 1e3,
-    "m": 1e-3,
-    "u": 1e-6,
-    "µ": 1e-6,
-    "n": 1e-9,
-    "p": 1e-12,
-    "f": 1e-15,
-}
-_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([TGMkmuµnpf]?)\s*$")
+from .._units import parse_number as parse_number  # re-exported for the commands
 
 
 class CommandError(Exception):
@@ -30,20 +16,6 @@ class CommandError(Exception):
 
 
 # -- NAME=VALUE ---------------------------------------------------------------------
-def parse_number(text: str) -> float:
-    """A float, optionally with an SI prefix: '4.7u' -> 4.7e-6, '10k' -> 1e4.
-
-    **Raises:** `ValueError` for anything else (including 'inf' and 'nan').
-    """
-    m = _NUMBER.match(text)
-    if not m:
-        raise ValueError(text)
-    value = float(m.group(1)) * _PREFIX.get(m.group(2), 1.0)
-    if not math.isfinite(value):
-        raise ValueError(text)
-    return value
-
-
 def parse_assignments(items: Sequence[str] | None, option: str) -> dict[str, float]:
     """``["R1=10k", "v_in=0.6"]`` -> ``{"R1": 1e4, "v_in": 0.6}``.
 
