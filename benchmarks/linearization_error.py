@@ -90,6 +90,12 @@ class Choice:
 CHOICES = {
     "diode_clipper": Choice("v_sensor", "v_adc", 1.0,
                             "the only input; 1 V swings the diode from off to hard on"),
+    "ldo_compensation": Choice("v_bat", "v_out", 0.5,
+                               "line steps on the cell (v_ref is an internal reference); "
+                               "0.5 V covers most of the cell's 3.3-4.2 V range around 3.7 V"),
+    "photodiode_tia_sizing": Choice("i_photo", "v_out", 1e-6,
+                                    "the photocurrent is the signal; the op-amp model is "
+                                    "linear, so the error measures the transient solver alone"),
     "photodiode_frontend": Choice("i_photo", "v_out", 10e-6,
                                   "the photocurrent is the signal (v_cc is the supply); "
                                   "10 uA through R_F moves the collector by about 1 V"),
