@@ -56,7 +56,8 @@ def _step(A, B, C, D, t):
     big = jnp.zeros((r + m, r + m)).at[:r, :r].set(A).at[:r, r:].set(B)
 
     def one(tk):
-        gamma = jsl.expm(big * tk)[:r, r:]  # integral of exp(A s) ds B over [0, t]
+        # integral of exp(A s) ds B over [0, t]; stiff models need many squarings
+        gamma = jsl.expm(big * tk, max_squarings=64)[:r, r:]
         return C @ gamma + D
 
     return jnp.moveaxis(jax.vmap(one)(t), 0, -1)

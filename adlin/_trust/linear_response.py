@@ -49,6 +49,11 @@ MERGE_FRACTION = 1e-12
 # Segment lengths that agree to this relative precision share one propagator
 # (a uniform grid's steps differ by rounding only).
 LENGTH_RTOL = 1e-10
+# jax's expm returns NaN when |A h| needs more squarings than this (its default
+# is 16, |A h| up to ~3.5e5).  Stiff circuit models need more: the demo
+# regulator spans poles from 1e3 to 1.8e12 rad/s, |A h| ~ 5e7 on a grid
+# resolving the slow pole.  64 covers |A h| up to ~1e20.
+MAX_SQUARINGS = 64
 
 
 def _bucket(n: int, least: int) -> int:
@@ -139,7 +144,7 @@ def hold_propagators(A, B, h):
         M = jnp.block([[A * hk, B * hk, z_rm],
                        [z_mr, z_mm, eye],
                        [z_mr, z_mm, z_mm]])
-        F = jsl.expm(M)
+        F = jsl.expm(M, max_squarings=MAX_SQUARINGS)
         return F[:r, :r], F[:r, r:r + m] - F[:r, r + m:], F[:r, r + m:]
 
     return jax.vmap(one)(h)
