@@ -261,3 +261,19 @@ def test_progress_bar_is_fed_by_the_callbacks(rc_model):
         else:
             os.environ["ADLIN_CACHE_DIR"] = old
     assert status == 0, err.getvalue()
+
+
+def test_pole_path_marks_pole_placement_targets():
+    # A pole pair at natural frequency w and damping zeta sits at
+    # -zeta w +- j w sqrt(1 - zeta^2) (Ogata, Modern Control Engineering, 5th
+    # ed., sec. 5-3); a real pole at f Hz at -2 pi f.
+    from adlin import targets
+    from adlin.report.sizing import target_pole_positions
+
+    got = target_pole_positions([targets.PolePair(1e3, 0.5), targets.RealPole(10.0),
+                                 targets.MinDamping(0.7)])
+    w = 2 * np.pi * 1e3
+    want = [complex(-0.5 * w, w * np.sqrt(0.75)), complex(-0.5 * w, -w * np.sqrt(0.75)),
+            complex(-2 * np.pi * 10.0, 0.0)]
+    assert sorted(got, key=lambda z: (z.real, z.imag)) == pytest.approx(
+        sorted(want, key=lambda z: (z.real, z.imag)), rel=1e-12)

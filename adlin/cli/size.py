@@ -120,7 +120,7 @@ def cmd_size(args, out=None) -> int:
         result = size(system, free, targets, inputs=inputs, params=params, starts=args.starts,
                       seed=args.seed, round_to=args.round, max_iterations=args.iterations,
                       progress=update)
-    summary = summarize_sizing(system, result)
+    summary = summarize_sizing(system, result, targets=targets)
     return emit_report(args, out, summary, to_dict=sizing_to_dict,
                        text="sizing_text:render_sizing",
                        figures="sizing_figures:write_sizing_figures")

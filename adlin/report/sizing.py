@@ -66,6 +66,7 @@ class SizingSummary:
     - `poles`: the best start's finite poles per iteration, (m, r) complex
       (padding dropped; NaN where a pole is missing).
     - `evaluations`, `failed_evaluations`, `message`: effort and stop reason.
+    - `target_poles`: where pole-placement targets put poles (rad/s, complex).
     """
 
     name: str
@@ -83,9 +84,23 @@ class SizingSummary:
     message: str = ""
     notes: list[str] = field(default_factory=list)
     safety_note: str = SAFETY_NOTE
+    target_poles: np.ndarray = field(default_factory=lambda: np.zeros(0, complex))
 
 
-def summarize_sizing(system, result, notes=()) -> SizingSummary:
+def target_pole_positions(targets) -> np.ndarray:
+    """The s-plane positions that `PolePair` and `RealPole` targets ask for (rad/s)."""
+    from .._design.pole_targets import PolePair, RealPole
+
+    out = []
+    for t in targets:
+        if isinstance(t, PolePair):
+            out.extend(t.roots())
+        elif isinstance(t, RealPole):
+            out.append(complex(-2 * math.pi * t.f_hz, 0.0))
+    return np.asarray(out, dtype=complex)
+
+
+def summarize_sizing(system, result, notes=(), targets=()) -> SizingSummary:
     """Collect a `SizingResult`'s report values.
 
     **Arguments:**
@@ -93,6 +108,8 @@ def summarize_sizing(system, result, notes=()) -> SizingSummary:
     - `system`: the System that was sized (for units and the name).
     - `result`: the `adlin.SizingResult` of `adlin.size`.
     - `notes`: extra lines to print under the tables.
+    - `targets`: the target objects, so the pole-path figure can mark where
+      pole-placement targets put poles (optional).
 
     **Returns:** a `SizingSummary`.
     """
@@ -126,7 +143,8 @@ def summarize_sizing(system, result, notes=()) -> SizingSummary:
         best=best, poles=poles.astype(complex) if poles.size else np.zeros((0, 0), complex),
         evaluations=int(result.evaluations),
         failed_evaluations=int(getattr(result, "failed_evaluations", 0)),
-        message=str(result.message), notes=list(notes))
+        message=str(result.message), notes=list(notes),
+        target_poles=target_pole_positions(targets))
 
 
 def _num(v) -> float | None:

@@ -93,6 +93,10 @@ def pole_path_figure(s: SizingSummary):
                 label="start", zorder=4)
         ax.plot(last.real, last.imag, linestyle="none", marker="D", markersize=7,
                 color=PALETTE[1], markeredgecolor=TEXT, label="sized", zorder=5)
+    goal = np.asarray(s.target_poles, dtype=complex) * factor
+    if goal.size:
+        ax.plot(goal.real, goal.imag, linestyle="none", marker="x", markersize=11,
+                markeredgewidth=2.0, color=TEXT, label="target", zorder=6)
     s_plane_frame(ax, prefix)
     ax.legend(frameon=False, fontsize=8.5, labelcolor=TEXT, loc="best")
     fig.suptitle(f"{s.name}: poles of the best start, pale = first iteration", color=TEXT,
