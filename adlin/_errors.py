@@ -39,7 +39,7 @@ class AnalysisError(AdlinError):
     """A linear analysis was asked for something it cannot give."""
 
 
-def did_you_mean(name: str, valid: "list[str] | tuple[str, ...]") -> str:
+def did_you_mean(name: str, valid: list[str] | tuple[str, ...]) -> str:
     """A short hint naming the closest valid names, for error messages."""
     import difflib
 

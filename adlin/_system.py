@@ -140,10 +140,12 @@ class System(eqx.Module):
             if missing:
                 raise ModelError(
                     f"output {missing[0]!r} is not an unknown and no output function was given; "
-                    f"pass output=g or choose among the unknowns ({did_you_mean(missing[0], self.unknowns)})."
+                    "pass output=g or choose among the unknowns "
+                    f"({did_you_mean(missing[0], self.unknowns)})."
                 )
         elif not outs:
-            raise ModelError("an output function was given but no output names; pass outputs=(...).")
+            raise ModelError("an output function was given but no output names; "
+                             "pass outputs=(...).")
         self.outputs = outs
         params = dict(params or {})
         self.param_items = tuple(zip(params.keys(), _values("params", params), strict=True))
@@ -153,7 +155,8 @@ class System(eqx.Module):
                              "unknown or input; rename one of them.")
         clash = set(self.unknowns) & set(self.inputs)
         if clash:
-            raise ModelError(f"name {sorted(clash)[0]!r} is both an unknown and an input; rename one.")
+            raise ModelError(f"name {sorted(clash)[0]!r} is both an unknown and an input; "
+                             "rename one.")
         self.unit_items = tuple((str(k), str(v)) for k, v in (units or {}).items())
         for j in junctions:
             for t in (j.anode, j.cathode):
@@ -279,7 +282,8 @@ def _merge(kind: str, names: tuple[str, ...], defaults, given: Mapping[str, Any]
     values = dict(defaults)
     if given is not None:
         if not isinstance(given, Mapping):
-            raise ParameterError(f"{kind} values must be a dict name -> value, got {type(given).__name__}.")
+            raise ParameterError(f"{kind} values must be a dict name -> value, "
+                                 f"got {type(given).__name__}.")
         for k, v in given.items():
             if k not in values:
                 raise ParameterError(f"unknown {kind} {k!r}: {did_you_mean(k, names)}.")

@@ -7,10 +7,6 @@ import jax.numpy as jnp
 import numpy as np
 import pytest
 import scipy.signal
-from hypothesis import given, settings
-from hypothesis import strategies as st
-
-import adlin
 from closed_forms import (
     VT,
     descriptor_divider,
@@ -21,6 +17,10 @@ from closed_forms import (
     series_rlc,
     van_der_pol,
 )
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+import adlin
 
 
 def _lin(system, **kw):

@@ -6,9 +6,9 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 import pytest
+from closed_forms import VT, diode_resistor, diode_resistor_exact, van_der_pol
 
 import adlin
-from closed_forms import VT, diode_resistor, diode_resistor_exact, van_der_pol
 
 
 # Banwell & Jayakumar, Electronics Letters 36(4), 2000: Lambert W closed form.

@@ -134,7 +134,7 @@ def normalize(
 
     def pick(names, values):
         out = []
-        for k, (name, v) in enumerate(zip(names, values, strict=True)):
+        for k, name in enumerate(names):
             if name in scales:
                 out.append(xp.asarray(scales[name], dtype=xp.float64))
                 origin.append((name, "given"))

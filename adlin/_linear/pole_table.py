@@ -36,7 +36,9 @@ class Root:
     def q(self) -> float:
         """Quality factor 1/(2 zeta) of a complex pair; nan for real roots."""
         zeta = self.damping
-        return 1.0 / (2.0 * zeta) if self.pair and zeta != 0 else (math.inf if self.pair else math.nan)
+        if not self.pair:
+            return math.nan
+        return 1.0 / (2.0 * zeta) if zeta != 0 else math.inf
 
     @property
     def time_constant_s(self) -> float:
@@ -83,7 +85,8 @@ class RootTable:
         return [r.as_dict() for r in self.roots]
 
     def lines(self) -> list[str]:
-        head = f"{self.kind + 's':<7} {'s (rad/s)':>26} {'f (Hz)':>11} {'damping':>8} {'Q':>8} {'tau':>10}"
+        head = (f"{self.kind + 's':<7} {'s (rad/s)':>26} {'f (Hz)':>11} {'damping':>8} "
+                f"{'Q':>8} {'tau':>10}")
         out = [head]
         for r in self.roots:
             s = (f"{r.value.real:.4g} ± j{r.value.imag:.4g}" if r.pair else f"{r.value.real:.4g}")
