@@ -20,10 +20,8 @@
 
 from __future__ import annotations
 
-import contextlib
 import functools
 import importlib.util
-import io
 import json
 import math
 import os
@@ -34,9 +32,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 import sympy as sp
+from cli_harness import Terminal, run
 
 import adlin
-from adlin.cli.main import main
 
 ROOT = Path(__file__).resolve().parents[1]
 TIA = ROOT / "examples" / "photodiode_tia_sizing.py"
@@ -60,25 +58,6 @@ rc = adlin.System(_f, _q, unknowns=("v_c",), inputs={"v_in": 1.0}, outputs=("v_c
                   output=lambda x, u, p: x, params={"R": 1e3, "C": 10e-9},
                   units={"R": "ohm", "C": "F"}, name="rc_lowpass")
 '''
-
-
-def run(argv: list[str]) -> tuple[int, str, str]:
-    """`adlin ...` in-process with the persistent cache off: (status, stdout, stderr)."""
-    out, err = io.StringIO(), io.StringIO()
-    old = os.environ.get("ADLIN_CACHE_DIR")
-    os.environ["ADLIN_CACHE_DIR"] = ""
-    try:
-        with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-            try:
-                status = main(argv)
-            except SystemExit as stop:  # argparse's own errors (e.g. an invalid --round)
-                status = stop.code
-    finally:
-        if old is None:
-            os.environ.pop("ADLIN_CACHE_DIR", None)
-        else:
-            os.environ["ADLIN_CACHE_DIR"] = old
-    return status, out.getvalue(), err.getvalue()
 
 
 def in_e24(value: float) -> bool:
@@ -242,24 +221,10 @@ def test_example_runs_as_a_script():
     assert "targets met" in done.stdout and "classic:" in done.stdout
 
 
-class _Terminal(io.StringIO):
-    def isatty(self) -> bool:  # the progress bar runs only on a terminal
-        return True
-
-
 def test_progress_bar_is_fed_by_the_callbacks(rc_model):
-    err = _Terminal()
-    old = os.environ.get("ADLIN_CACHE_DIR")
-    os.environ["ADLIN_CACHE_DIR"] = ""
-    try:
-        with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(err):
-            status = main(["size", str(rc_model), "--free", "R=100..1M", "--target", "pole=2k",
-                            "--starts", "2", "--iterations", "5"])
-    finally:
-        if old is None:
-            os.environ.pop("ADLIN_CACHE_DIR", None)
-        else:
-            os.environ["ADLIN_CACHE_DIR"] = old
+    err = Terminal()
+    status, _, _ = run(["size", str(rc_model), "--free", "R=100..1M", "--target", "pole=2k",
+                         "--starts", "2", "--iterations", "5"], err=err)
     assert status == 0, err.getvalue()
 
 

@@ -16,19 +16,15 @@ correct implementation fails about once in 1e5 runs (and the seed is fixed).
 
 from __future__ import annotations
 
-import contextlib
-import io
 import json
 import math
-import os
 from pathlib import Path
 
 import numpy as np
 import pytest
 import scipy.optimize
 import sympy as sp
-
-from adlin.cli.main import main
+from cli_harness import Terminal, run
 
 ROOT = Path(__file__).resolve().parents[1]
 TIA = ROOT / "examples" / "photodiode_tia_sizing.py"
@@ -44,22 +40,6 @@ def _h(x, u, p):
 root = adlin.System.from_ode(_h, states=("x",), params={"a": 1.0, "tau": 1e-3},
                              units={"x": "V", "a": "V^2", "tau": "s"}, name="square_root")
 '''
-
-
-def run(argv: list[str]) -> tuple[int, str, str]:
-    """`adlin ...` in-process with the persistent cache off: (status, stdout, stderr)."""
-    out, err = io.StringIO(), io.StringIO()
-    old = os.environ.get("ADLIN_CACHE_DIR")
-    os.environ["ADLIN_CACHE_DIR"] = ""
-    try:
-        with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-            status = main(argv)
-    finally:
-        if old is None:
-            os.environ.pop("ADLIN_CACHE_DIR", None)
-        else:
-            os.environ["ADLIN_CACHE_DIR"] = old
-    return status, out.getvalue(), err.getvalue()
 
 
 @pytest.fixture(scope="module")
@@ -209,21 +189,7 @@ def test_photodiode_yield_of_a_damping_target_under_a_capacitance_spread(tmp_pat
     assert gain["max"] == pytest.approx(gain["min"], rel=1e-9)
 
 
-class _Terminal(io.StringIO):
-    def isatty(self) -> bool:  # the progress bar runs only on a terminal
-        return True
-
-
 def test_progress_bar_is_fed_by_the_callbacks(root_model):
-    err = _Terminal()
-    old = os.environ.get("ADLIN_CACHE_DIR")
-    os.environ["ADLIN_CACHE_DIR"] = ""
-    try:
-        with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(err):
-            status = main(["spread", str(root_model), "--tol", "tau=1%", "-n", "8"])
-    finally:
-        if old is None:
-            os.environ.pop("ADLIN_CACHE_DIR", None)
-        else:
-            os.environ["ADLIN_CACHE_DIR"] = old
+    err = Terminal()
+    status, _, _ = run(["spread", str(root_model), "--tol", "tau=1%", "-n", "8"], err=err)
     assert status == 0, err.getvalue()
