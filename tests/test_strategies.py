@@ -280,6 +280,26 @@ def test_prefer_stable_keeps_an_oscillator_bias():
     np.testing.assert_allclose(np.asarray(op.x), [0.0, 0.0], atol=1e-12)
     assert op.method == "newton" and bool(op.converged)
     assert "pseudo-transient: found no stable state" in op.attempts_message
+    # the origin is an unstable focus (poles mu/2 +- i sqrt(1 - mu^2/4), same section) and
+    # the run from the guess oscillates without settling: no runs from beside the focus,
+    # so the evaluations are Newton's plus one pseudo-transient run's
+    slots = np.asarray(op.attempt_evaluations)
+    assert int(op.evaluations) == int(slots.sum())
+
+
+def test_real_and_complex_unstable_poles_are_told_apart():
+    """Hand pencils (E = I): the latch saddle [[-1, 2], [2, -1]] has the real unstable
+    pole +1; the Van der Pol linearization [[0, 1], [-1, mu]] at mu = 0.5 has the
+    complex pair mu/2 +- i sqrt(1 - mu^2/4) (Strogatz sec. 7.6); a stable node has none."""
+    from adlin._steady.stability import has_real_unstable_pole
+
+    eye = np.eye(2)
+    assert has_real_unstable_pole(eye, np.array([[-1.0, 2.0], [2.0, -1.0]]))
+    assert not has_real_unstable_pole(eye, np.array([[0.0, 1.0], [-1.0, 0.5]]))
+    assert not has_real_unstable_pole(eye, np.array([[-1.0, 0.0], [0.0, -2.0]]))
+    # an algebraic unknown (a zero row of E) gives an infinite eigenvalue, not a pole
+    E = np.diag([1.0, 0.0])
+    assert has_real_unstable_pole(E, np.array([[1.0, 0.0], [0.0, -1.0]]))
 
 
 @functools.cache

@@ -17,6 +17,15 @@ that way is returned instead.  The rule, in this order, is deterministic:
 2. Otherwise, from just beside the unstable state along its most unstable
    direction d, first +d then -d, with the sign of d fixed so that its largest
    entry is positive; the first run that ends in a stable state is taken.
+   Skipped when the power-up run did not settle (it used up its steps) and the
+   unstable state has no real pole in the right half-plane, only complex
+   pairs (an unstable focus): the powered-up circuit then oscillates, and runs
+   started beside the focus spiral out into the same oscillation, so they
+   would only spend their step limit again (a rule of our own; on the
+   tunnel-diode oscillator of the hard corpus it cuts the search from 7266 to
+   2454 residual evaluations).  A saddle keeps both runs: a power-up can end
+   on its stable manifold (a symmetric latch), and a real unstable direction
+   leads to one stable state on each side.
 3. If none does (an oscillator's bias is unstable on purpose, and so may be
    every state of a circuit), the unstable state is returned unchanged, and
    `op.history` says that no stable state was found.
@@ -31,7 +40,7 @@ import scipy.linalg
 
 from .operating_point import OperatingPoint
 from .strategies import PseudoTransient
-from .strategies.reasons import NO_STABLE_STATE, PSEUDO_TRANSIENT
+from .strategies.reasons import NO_CONVERGENCE, NO_STABLE_STATE, PSEUDO_TRANSIENT
 
 # A pole counts as unstable when Re(s) > _RTOL * max|s| (relative, so unit-free).
 _RTOL = 1e-9
@@ -42,6 +51,29 @@ POWER_UP = PseudoTransient(scaling="storage", ramp_steps=POWER_UP_RAMP_STEPS)
 FROM_BESIDE = PseudoTransient(scaling="storage")
 
 
+def _unstable_poles(E: np.ndarray, A: np.ndarray):
+    """Finite right-half-plane poles of E dx/dt = A x and their right eigenvectors,
+    most unstable first (scipy's QZ on the pencil (A, E); infinite eigenvalues,
+    i.e. algebraic unknowns, dropped)."""
+    w, v = scipy.linalg.eig(A, E)
+    finite = np.isfinite(w)
+    w, v = w[finite], v[:, finite]
+    if not w.size:
+        return w, v
+    scale = max(float(np.max(np.abs(w))), 1e-300)
+    keep = w.real > _RTOL * scale
+    order = np.argsort(-w.real[keep])
+    return w[keep][order], v[:, keep][:, order]
+
+
+def has_real_unstable_pole(E: np.ndarray, A: np.ndarray) -> bool:
+    """True when a right-half-plane pole of E dx/dt = A x is real (a saddle-type
+    instability), False when every unstable pole is one of a complex pair (or
+    there is none).  A pole counts as real when |Im s| <= 1e-9 |s|."""
+    w, _ = _unstable_poles(E, A)
+    return bool(np.any(np.abs(w.imag) <= _RTOL * np.abs(w)))
+
+
 def unstable_direction(E: np.ndarray, A: np.ndarray):
     """The right eigenvector (real part, scaled so that its largest entry is +1) of
     the most unstable finite pole of E dx/dt = A x, or None when every finite
@@ -50,18 +82,12 @@ def unstable_direction(E: np.ndarray, A: np.ndarray):
     Uses scipy's QZ (generalized eigenvalues of the pencil (A, E)); infinite
     eigenvalues (algebraic unknowns) are dropped.
     """
-    w, v = scipy.linalg.eig(A, E)
-    finite = np.isfinite(w)
-    if not finite.any():
+    w, v = _unstable_poles(E, A)
+    if not w.size:
         return None
-    w, v = w[finite], v[:, finite]
-    scale = max(float(np.max(np.abs(w))), 1e-300)
-    k = int(np.argmax(w.real))
-    if w[k].real <= _RTOL * scale:
-        return None
-    d = np.real(v[:, k])
+    d = np.real(v[:, 0])
     if np.max(np.abs(d)) == 0:
-        d = np.imag(v[:, k])
+        d = np.imag(v[:, 0])
     # the eigensolver's sign is arbitrary; fix it so the run order is reproducible
     return d / d[int(np.argmax(np.abs(d)))]
 
@@ -83,11 +109,11 @@ def prefer_stable(compiled, op: OperatingPoint, u, p, x0) -> OperatingPoint:
     """
     from .solve import _merge_attempts
 
-    def direction(x):
-        E, A = (np.asarray(m) for m in compiled.matrices(x, u, p)[:2])
-        return unstable_direction(E, A)
+    def pencil(x):
+        return tuple(np.asarray(m) for m in compiled.matrices(x, u, p)[:2])
 
-    d = direction(op.x)
+    E, A = pencil(op.x)
+    d = unstable_direction(E, A)
     if d is None:
         return op
     x = np.asarray(op.x)
@@ -95,12 +121,15 @@ def prefer_stable(compiled, op: OperatingPoint, u, p, x0) -> OperatingPoint:
     # without inputs the ramp changes nothing: reuse the other program (one compile less)
     runs = [(POWER_UP if np.size(u) else FROM_BESIDE, np.asarray(x0))]
     runs += [(FROM_BESIDE, x + sign * step * d) for sign in (1.0, -1.0)]
+    focus = not has_real_unstable_pole(E, A)
     tried = [op]
     for strategy, start in runs:
         cand = compiled.solve_with(strategy)(u, p, jnp.asarray(start))
         tried.append(cand)
-        if bool(cand.converged) and direction(cand.x) is None:
+        if bool(cand.converged) and unstable_direction(*pencil(cand.x)) is None:
             return _merge_attempts(tried, cand)
+        if len(tried) == 2 and focus and int(cand.status) == NO_CONVERGENCE:
+            break  # the power-up oscillates around a focus: see rule 2 above
     out = _merge_attempts(tried, op)
     marked = np.asarray(out.attempts).copy()
     marked[PSEUDO_TRANSIENT] = NO_STABLE_STATE

@@ -66,8 +66,8 @@ def describe(strategy: int, reason: int, progress: float = float("nan"), steps: 
         TURNED_BACK: f"the path turned back past its start ({at})",
         POLISH_FAILED: "Newton from the end of the path did not converge",
         NO_STABLE_STATE: ("found no stable state by following the circuit's dynamics "
-                          "(power-up, and from beside the unstable state); the unstable "
-                          "state is kept"),
+                          "(power-up, then from beside the unstable state unless the "
+                          "power-up oscillates around a focus); the unstable state is kept"),
     }.get(reason, f"unknown reason code {reason}")
 
 
