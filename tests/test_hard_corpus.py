@@ -172,6 +172,57 @@ def test_tunnel_oscillator_bias_is_unstable_with_the_hand_poles():
     assert np.all(poles.real > 0)
 
 
+def _stack_draw(seed: int, leakage: float) -> dict[str, float]:
+    """Parameters of one random draw of the stack's spread: I_S 2.5 nA +- 5 %,
+    BV 9.1 V +- 1 % (uniform), and a leakage conductance in every diode."""
+    rng = np.random.default_rng(seed)
+    params = {}
+    for k in range(1, hard.diode_stack.N_DIODES + 1):
+        params[f"D{k}.saturation_current"] = 2.5e-9 * (1 + 0.05 * rng.uniform(-1, 1))
+        params[f"D{k}.breakdown_voltage"] = 9.1 * (1 + 0.01 * rng.uniform(-1, 1))
+        params[f"D{k}.leakage_conductance"] = leakage
+    return params
+
+
+@pytest.mark.slow
+def test_diode_stack_is_hard_for_newton_on_every_draw_of_the_spread():
+    """The stack's difficulty is not an accident of its table: on ten seeded draws of
+    the same spread plain Newton from zero fails or needs more than 50 iterations
+    (about 100, measured); with a 1 pS leakage conductance in every diode (the reverse
+    current no longer flat) it converges within 40 on each draw.  The iteration
+    counts are measurements of adlin's Newton, the contrast is the claim."""
+    system = hard.diode_stack.diode_stack()
+    for seed in range(10):
+        ideal = adlin.steady_state(system, params=_stack_draw(seed, 0.0), strategy="newton",
+                                   throw=False)
+        iterations = int(np.asarray(ideal.attempt_steps)[0])
+        assert not bool(ideal.converged) or iterations > 50, (seed, iterations)
+        leaky = adlin.steady_state(system, params=_stack_draw(seed, 1e-12), strategy="newton",
+                                   throw=False)
+        assert bool(leaky.converged) and int(np.asarray(leaky.attempt_steps)[0]) <= 40, seed
+
+
+def test_diode_stack_hand_rule_is_the_series_current_law():
+    """The hand sharing (`sharing`) solves the stack's own equations: the reverse current
+    of every diode law, evaluated in plain float64 at the hand voltages, equals the
+    string current to 1e-9 relative (the avalanche diodes are the steep ones, so their
+    current carries the rounding of their voltages), and the voltages add up to the
+    supply less the drop across RL."""
+    m = hard.diode_stack
+    volts, limiting, current = m.sharing()
+    law = {"emission_coefficient": m.EMISSION, "breakdown_current": m.BREAKDOWN_CURRENT,
+           "leakage_conductance": 0.0}
+    for k, v in enumerate(volts):
+        law.update(saturation_current=m.SATURATION_CURRENTS[k],
+                   breakdown_voltage=m.BREAKDOWN_VOLTAGES[k])
+        reverse = -float(m.avalanche_diode_current(-v, law))
+        assert abs(reverse - current) <= 1e-9 * current, (k, reverse, current)
+    assert abs(sum(volts) + m.R_LINE * current - m.V_SUPPLY) <= 1e-12 * m.V_SUPPLY
+    # the limiting diode blocks several volts; six lower-leakage parts sit at their knees
+    assert 2.0 < volts[limiting] < 8.0
+    assert sum(v > 8.0 for v in volts) == 6
+
+
 @pytest.mark.slow
 def test_regulator_with_a_weak_start_up_resistor_sticks():
     """The start-up margin the case describes: with RSU = 150 kOhm a stable state
