@@ -22,6 +22,7 @@ from . import (
     latch,
     mirror,
     ptat_cell,
+    put_oscillator,
     regulator,
     schmitt,
     tunnel_oscillator,
@@ -39,6 +40,7 @@ CORPUS: tuple[HardCase, ...] = (
     diode_stack.CASE,
     mirror.CASE,
     ptat_cell.CASE,
+    put_oscillator.CASE,
     tunnel_oscillator.CASE,
     regulator.CASE,
 )
