@@ -224,6 +224,47 @@ def test_diode_stack_hand_rule_is_the_series_current_law():
 
 
 @pytest.mark.slow
+def test_put_oscillator_meets_the_relaxation_design_rule():
+    """The anode characteristic of the switch (current-driven, 0.5 uA steps, each point
+    from the last) has the peak and valley the case documents; the timing resistor
+    meets the relaxation-oscillator rule I_P < (V - V_P) / R_T and (V - V_V) / R_T < I_V
+    (Millman & Halkias, Integrated Electronics, 1972, unijunction section, from
+    memory), so the load line crosses the S-curve once; and the oscillator's pole is
+    that of C_T against R_T in parallel with the pair's differential resistance r at
+    the crossing, s = -(1 / R_T + 1 / r) / C_T (nodal analysis), with r from the
+    current-driven circuit by a central difference."""
+    m = hard.put_oscillator
+    drive = m.anode_drive()
+    currents = np.arange(1e-6, 200e-6, 0.5e-6)
+    volts, guess = [], None
+    for i in currents:
+        op = adlin.steady_state(drive, {"i_anode": i}, guess=guess, strategy="newton")
+        guess = op
+        volts.append(float(op["v_a"]))
+    volts = np.array(volts)
+    k = int(np.argmax(volts))
+    j = k + int(np.argmin(volts[k:]))
+    i_p, v_p, i_v, v_v = currents[k], volts[k], currents[j], volts[j]
+    assert abs(i_p - 44.5e-6) <= 1e-6 and abs(v_p - 4.33) <= 0.01
+    assert abs(i_v - 137e-6) <= 2e-6 and abs(v_v - 0.705) <= 0.005
+    assert i_p < (m.V_RAIL - v_p) / m.R_T and (m.V_RAIL - v_v) / m.R_T < i_v
+    gap = volts + m.R_T * currents - m.V_RAIL  # zero where the load line meets the curve
+    assert int(np.count_nonzero(np.diff(np.sign(gap)))) == 1
+
+    case = hard.case("put_oscillator")
+    osc = adlin.steady_state(case.build(), strategy=case.strategy)
+    i_star = (m.V_RAIL - float(osc["v_a"])) / m.R_T
+    h = 1e-9
+    v_hi, v_lo = (float(adlin.steady_state(drive, {"i_anode": i_star + d}, guess=guess,
+                                           strategy="newton")["v_a"]) for d in (h, -h))
+    r = (v_hi - v_lo) / (2 * h)
+    assert -150.0 < r < -50.0  # "about -100 Ohm"
+    pole = complex(np.asarray(adlin.linearize(case.build(), osc).poles())[0])
+    np.testing.assert_allclose(pole.real, -(1 / m.R_T + 1 / r) / m.C_T, rtol=1e-4)
+    assert pole.imag == 0.0 and pole.real > 0
+
+
+@pytest.mark.slow
 def test_regulator_with_a_weak_start_up_resistor_sticks():
     """The start-up margin the case describes: with RSU = 150 kOhm a stable state
     with the output near 0.5 V exists, and Newton from zero lands in it."""
@@ -240,5 +281,11 @@ def test_regulator_with_a_weak_start_up_resistor_sticks():
 def test_corpus_is_complete_and_names_are_unique():
     names = [c.name for c in CORPUS]
     assert len(names) >= 8 and len(set(names)) == len(names)
+    # the issue asks for eight circuits where Newton from zero fails or is ambiguous;
+    # test_newton_from_zero_behaves_as_documented keeps each outcome true, and the
+    # Schmitt trigger, where Newton reaches the intended state by chance, is ambiguous
+    # (a second stable state at the same input: test_schmitt_has_a_second_stable_state...)
+    hard_ones = {c.name for c in CORPUS if c.newton_from_zero != NEWTON_CONVERGES}
+    assert len(hard_ones | {"schmitt"}) >= 8
     with pytest.raises(adlin.ParameterError, match="ptat_cell"):
         hard.case("ptat_cel")

@@ -65,6 +65,16 @@ PNP = dict(saturation_current=1e-14, forward_beta=100.0, reverse_beta=2.0)
 V_JUNCTION, V_SATURATION = 0.7, 0.1
 
 
+def _switch(c: Circuit) -> None:
+    """The complementary pair with its gate divider and resistors (anode node ``a``)."""
+    c.resistor("R1", "vcc", "g", R1)
+    c.resistor("R2", "g", "gnd", R2)
+    c.bjt("Q1", c="n", b="g", e="a", polarity="pnp", **PNP)
+    c.bjt("Q2", c="g", b="n", e="k", polarity="npn", **NPN)
+    c.resistor("RBE", "n", "k", R_BE)
+    c.resistor("RK", "k", "gnd", R_K)
+
+
 @functools.cache
 def put_oscillator() -> System:
     """The oscillator as an `adlin.System` (input ``v_supply``, output ``v_pulse``)."""
@@ -73,13 +83,26 @@ def put_oscillator() -> System:
     c.voltage_source("VS", "vcc", "gnd", "v_supply")
     c.resistor("RT", "vcc", "a", R_T)
     c.capacitor("CT", "a", "gnd", C_T)
-    c.resistor("R1", "vcc", "g", R1)
-    c.resistor("R2", "g", "gnd", R2)
-    c.bjt("Q1", c="n", b="g", e="a", polarity="pnp", **PNP)
-    c.bjt("Q2", c="g", b="n", e="k", polarity="npn", **NPN)
-    c.resistor("RBE", "n", "k", R_BE)
-    c.resistor("RK", "k", "gnd", R_K)
+    _switch(c)
     c.output("v_pulse", "k")
+    return c.build()
+
+
+@functools.cache
+def anode_drive() -> System:
+    """The switch alone with its anode fed by a current source (input ``i_anode``).
+
+    A current-controlled characteristic is single-valued in the current, so
+    stepping ``i_anode`` and solving each point from the last traces the whole
+    S-curve, peak and valley included (how the values in the module docstring
+    were measured).
+    """
+    c = Circuit("put_anode_drive")
+    c.input("v_supply", V_RAIL, unit="V")
+    c.input("i_anode", 1e-6, unit="A")
+    c.voltage_source("VS", "vcc", "gnd", "v_supply")
+    c.current_source("IA", "gnd", "a", "i_anode")
+    _switch(c)
     return c.build()
 
 
