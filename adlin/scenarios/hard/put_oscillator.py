@@ -159,8 +159,8 @@ CASE = HardCase(
                 "100 kOhm from 12 V",
     build=put_oscillator,
     newton_from_zero=NEWTON_FAILS,
-    why="S-shaped (current-controlled) negative resistance: from zero the iterates swing "
-        "between the blocking and the latched side of the characteristic",
+    why="S-shaped (current-controlled) negative resistance: from zero the junction-limited "
+        "iterates climb past the peak (anode near 6 V) and stall there without converging",
     intended="the single, unstable bias on the falling part (both transistors on, anode "
              "about 0.7 V, about 113 uA)",
     predicate=_region,
