@@ -30,13 +30,18 @@ the lower-leakage parts sit at their avalanche knees and the higher-leakage
 parts near zero (`sharing`).
 
 Newton from zero: at 0 V each junction conducts I_S / (n V_T), about
-50 nS, so the first Newton step spreads the 60 V over all eight diodes;
-there the reverse current has saturated and the internal nodes are tied to
-each other only by conductances I_S exp(-v / (n V_T)) / (n V_T), below 1e-60 S, or by
-the steep avalanche branches: the Jacobian is nearly singular and the
-iterates are thrown between deep reverse bias and avalanche.  Measured:
-plain Newton stops without converging after its 200 iterations, with node
-voltages of 1e54 V and more; over ten random draws of the same spread (seeds
+50 nS, so the first Newton step spreads the 60 V over all eight diodes
+(7.2 to 7.9 V each, measured); there the reverse currents have saturated and
+the internal nodes are tied to each other only by conductances
+I_S exp(-v / (n V_T)) / (n V_T), below 1e-60 S: the Jacobian is nearly
+singular, and the second step is of order 1e11 V.  The third iterate is
+back with every diode in avalanche near 11 V (one at 89 V), and from there
+Newton walks down the avalanche exponentials by about one thermal
+voltage per iteration (9.1 V per diode after 80 iterations); when the first
+diodes drop out of avalanche into the flat saturated region, the nearly
+singular Jacobian throws the iterate out again (node voltages of 1e53 V and
+more by iteration 100), and it stops without converging after its 200
+iterations (all measured).  Over ten random draws of the same spread (seeds
 0-9) it failed on six and needed 106-110 iterations on the other four
 (`tests/test_hard_corpus.py`).  With a leakage conductance of 1 pS (1 TOhm,
 `leakage_conductance`, zero by default) in every diode, as a generation
