@@ -518,3 +518,25 @@ def test_unstable_operating_point_is_refused():
     op = adlin.steady_state(system, strategy="newton")
     with pytest.raises(adlin.AnalysisError, match="pole at .* left half plane"):
         adlin.distortion(system, op, input="u", output="x", amplitude=1e-3, f_hz=1e3)
+
+
+def test_stiff_but_stable_operating_point_is_accepted():
+    # Two first-order sections with poles at -1e3 and -1e13 rad/s (the demo
+    # regulator spans 1e3 .. 1.8e12 rad/s).  Stability is a sign question,
+    # decided to the rounding of the eigenvalues (about eps times the largest
+    # pole: Golub & Van Loan, Matrix Computations, 4th ed., sec. 7.2, from
+    # memory); a margin of 1e-9 times the largest pole once called -1e3
+    # rad/s "not in the left half plane".  The measurement then settles for
+    # the slow pole's time constant, 1 ms.
+    from adlin._trust.distortion import _slowest_time_constant
+    from adlin._trust.stable import least_stable_pole
+
+    system = adlin.System.from_ode(
+        lambda x, u, p: jnp.stack([-p["a"] * x[0] + u[0], -p["b"] * x[1] + p["b"] * x[0]]),
+        states=("x1", "x2"), inputs=("u",), params={"a": 1e3, "b": 1e13})
+    op = adlin.steady_state(system, strategy="newton")
+    assert least_stable_pole(adlin.linearize(system, op).poles()) is None
+    assert _slowest_time_constant(system, op, "u") == pytest.approx(1e-3, rel=1e-9)
+    # and the rule still refuses a pole at +1 or at 0 beside a fast one
+    assert least_stable_pole([-1e13, 1.0]) == 1.0
+    assert least_stable_pole([-1e13, 0.0]) == 0.0

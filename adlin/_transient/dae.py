@@ -59,6 +59,10 @@ class ReducedField:
         Rinv = np.linalg.inv(R)
         self.system = compiled.system
         self.junctions = compiled.junctions
+        # element-by-element Jacobians for circuits (`adlin._derivatives`): the
+        # algebraic Newton's Jacobian without 15 forward tangents through every
+        # element, which also keeps the transient program smaller to compile
+        self.derivatives = compiled.derivatives
         self.n = n
         self.r = r
         self.R1 = R[:, :r]
@@ -91,8 +95,14 @@ class ReducedField:
         zc, uc, pc = (jax.lax.stop_gradient(v) for v in (z1, u, p))
         ref = jax.lax.stop_gradient(x_ref)
         guess = ref + jnp.asarray(self.R1) @ (zc - P1 @ ref)
+
+        def value_and_jacobian(x):
+            f, J = self.derivatives.current_x(x, uc, pc)
+            return (jnp.concatenate([P1 @ x - zc, L2 @ f]),
+                    jnp.concatenate([P1, L2 @ J], axis=0))
+
         res = newton_solve(lambda x: residual(x, zc, uc, pc), guess, self.junctions,
-                           ALGEBRAIC_NEWTON)
+                           ALGEBRAIC_NEWTON, value_and_jacobian=value_and_jacobian)
         xs = jax.lax.stop_gradient(res.x)
         J = jax.lax.stop_gradient(res.jacobian)
         # the last Newton update, differentiable in (z1, u, p): dx = -J^-1 dF

@@ -8,6 +8,19 @@ controller (Soederlind, ACM Trans. Math. Softw. 29(1), 2003) that stops on
 every stimulus edge: circuits are stiff (time constants over many decades),
 which explicit methods pay for with tiny steps.
 
+Two settings make the implicit stages affordable on stiff circuits (found on
+the demo regulator, poles 1e3 .. 1.8e12 rad/s, which with diffrax's defaults
+rejected 11,733 of 20,000 steps and reached 1.5 ms of a 10 ms line step, the
+step size stuck near 1e-13 s once the circuit had settled):
+
+- the stages are solved for increments h f in the unknowns' units
+  (`term.IncrementTerm`), not for derivatives f against tolerances meant for
+  the unknowns;
+- the chord iteration stops once its update is far below the tolerance
+  (`chord.StageChord`), instead of calling rounding noise divergence.
+
+With both the same run takes 429 steps (11 rejected), 0.5 s after compiling.
+
 One jitted program is built per compiled System and solver settings and
 cached; stimulus amplitudes, the operating point, parameters, the output grid
 and the end time are its arguments, so a new amplitude or parameter value
@@ -31,15 +44,26 @@ import numpy as np
 from .._errors import AdlinError, ModelError, ParameterError
 from .._steady.operating_point import OperatingPoint
 from .._system import System
+from .chord import StageChord
 from .dae import ReducedField
 from .result import FAILED, STEP_BUDGET, SUCCESS, Transient
 from .stimuli import as_stimuli, input_deviation, stimulus_edges
+from .term import IncrementTerm
 
 # Absolute-tolerance floor per state, in the state's own units (V, A), as a
 # multiple of rtol: a state sitting at 0 V is then controlled to rtol * 1 mV.
 ATOL_FLOOR = 1e-3
 
 _CACHE: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+
+
+def default_solver() -> diffrax.AbstractSolver:
+    """Kvaerno5 whose stage iteration is `StageChord` with the controller's tolerances."""
+    return _DEFAULT_SOLVER
+
+
+_DEFAULT_SOLVER = diffrax.Kvaerno5(
+    root_finder=diffrax.with_stepsize_controller_tols(StageChord)())
 
 
 def _traced(*xs) -> bool:
@@ -54,23 +78,37 @@ def reduced_field(compiled) -> ReducedField:
     return entry["field"]
 
 
-def _program(compiled, solver, rtol: float, max_steps: int, step_on_grid: bool):
+# Tracers of jit and vmap: values without derivatives.  Any other tracer
+# (jvp, grad's linearize, a transformation added later) may be reverse-
+# differentiated, so it gets the checkpointed loop.
+_PLAIN_TRACERS = ("DynamicJaxprTracer", "BatchTracer")
+
+
+def _differentiated(*xs) -> bool:
+    """True when some value may carry a derivative through this call."""
+    return any(isinstance(leaf, jax.core.Tracer) and type(leaf).__name__ not in _PLAIN_TRACERS
+               for leaf in jax.tree_util.tree_leaves(xs))
+
+
+def _program(compiled, solver, rtol: float, max_steps: int, step_on_grid: bool,
+             reverse: bool):
     """The jitted transient program for (System, solver, settings), built once."""
     entry = _CACHE.setdefault(compiled, {})
-    key = ("program", solver, rtol, max_steps, step_on_grid)
+    key = ("program", solver, rtol, max_steps, step_on_grid, reverse)
     try:
         prog = entry.get(key)
     except TypeError:  # an unhashable solver: key it by identity
-        key = ("program", id(solver), rtol, max_steps, step_on_grid)
+        key = ("program", id(solver), rtol, max_steps, step_on_grid, reverse)
         prog = entry.get(key)
     if prog is None:
         prog = jax.jit(_make_run(reduced_field(compiled), solver, rtol, max_steps,
-                                 step_on_grid))
+                                 step_on_grid, reverse))
         entry[key] = prog
     return prog
 
 
-def _make_run(field: ReducedField, solver, rtol: float, max_steps: int, step_on_grid: bool):
+def _make_run(field: ReducedField, solver, rtol: float, max_steps: int, step_on_grid: bool,
+              reverse: bool):
     system = field.system
 
     def vf(t, z, args):
@@ -78,7 +116,9 @@ def _make_run(field: ReducedField, solver, rtol: float, max_steps: int, step_on_
         u = u0 + input_deviation(system, stim, t)
         return field.vector_field(z, u, p, x_ref)
 
-    term = diffrax.ODETerm(vf)
+    # implicit solvers: stages in increment form (see the module notes)
+    implicit = isinstance(solver, diffrax.AbstractImplicitSolver)
+    term = IncrementTerm(vf) if implicit else diffrax.ODETerm(vf)
 
     def run(z0, x_ref, u0, p, stim, ts, t_end, jumps, atol):
         us = u0[None, :] + jax.vmap(lambda t: input_deviation(system, stim, t))(ts)
@@ -88,7 +128,9 @@ def _make_run(field: ReducedField, solver, rtol: float, max_steps: int, step_on_
             sol = diffrax.diffeqsolve(
                 term, solver, t0=jnp.asarray(0.0), t1=t_end, dt0=None, y0=z0,
                 args=(u0, p, x_ref, stim), saveat=diffrax.SaveAt(ts=ts),
-                stepsize_controller=controller, max_steps=max_steps, throw=False)
+                stepsize_controller=controller, max_steps=max_steps, throw=False,
+                adjoint=diffrax.RecursiveCheckpointAdjoint() if reverse else
+                diffrax.ForwardMode())
             zs = sol.ys
             code = jnp.where(sol.result == diffrax.RESULTS.successful, SUCCESS,
                              jnp.where(sol.result == diffrax.RESULTS.max_steps_reached,
@@ -231,7 +273,9 @@ def simulate(
     - `atol`: absolute tolerance per ODE state (scalar or (r,) array, in the
       states' units); default rtol * max(|state at start|, 1e-3).
     - `max_steps`: step budget (accepted plus rejected steps).
-    - `solver`: a diffrax solver with an error estimate; default Kvaerno5.
+    - `solver`: a diffrax solver with an error estimate; default Kvaerno5
+      with `StageChord` stage iterations (`default_solver()`).  Implicit
+      solvers get their stages in increment form (module notes).
     - `step_on_grid`: end a step on every output time, so each sample carries
       the solver's own accuracy (default).  False lets steps span several
       output times and fills them from the solver's interpolant: fewer steps
@@ -264,7 +308,7 @@ def simulate(
         raise ParameterError(f"rtol must be a number in (0, 1), got {rtol!r}.")
     if not isinstance(max_steps, (int, np.integer)) or max_steps < 1:
         raise ParameterError(f"max_steps must be a positive integer, got {max_steps!r}.")
-    solver = diffrax.Kvaerno5() if solver is None else solver
+    solver = _DEFAULT_SOLVER if solver is None else solver
     if not isinstance(solver, diffrax.AbstractSolver):
         raise ParameterError(f"solver must be a diffrax solver, e.g. diffrax.Kvaerno5(), got "
                              f"{solver!r}.")
@@ -285,9 +329,13 @@ def simulate(
     edges = stimulus_edges(items, 0.0, t_end_f)
     jumps = jnp.asarray(edges) if edges else None
 
-    prog = _program(compiled, solver, float(rtol), int(max_steps), bool(step_on_grid))
-    xs, ys, us, code, reached, stats = prog(z0, op.x, op.u, op.p, items, jnp.asarray(ts),
-                                            jnp.asarray(t_end_f), jumps, atol_v)
+    args = (z0, op.x, op.u, op.p, items, jnp.asarray(ts), jnp.asarray(t_end_f), jumps, atol_v)
+    # Reverse-mode derivatives need diffrax's checkpointed loop; a plain run (or
+    # forward-mode derivatives) takes the lighter loop: about a third less
+    # tracing on the demo regulator.  Derivatives always show up as JVP tracers.
+    prog = _program(compiled, solver, float(rtol), int(max_steps), bool(step_on_grid),
+                    _differentiated(args))
+    xs, ys, us, code, reached, stats = prog(*args)
     tr = Transient(
         t=jnp.asarray(ts), x=xs, y=ys, u=us, status=code, reached=reached,
         steps=stats[0], accepted_steps=stats[1], rejected_steps=stats[2],

@@ -19,6 +19,7 @@ from .._system import System
 from .distortion_options import DistortionOptions
 from .distortion_result import Distortion, MeasurementSettings
 from .harmonics import coherent_spectrum
+from .stable import least_stable_pole
 from .volterra import HarmonicKernels, harmonic_kernels
 
 # The measured harmonic is trusted when it stands this far above the record's
@@ -186,15 +187,13 @@ def _slowest_time_constant(system: System, op, input: str) -> float:
     poles = np.asarray(linearize(system, op).poles())
     if poles.size == 0:
         return 0.0
-    re = poles.real
-    scale = np.max(np.abs(poles))
-    worst = int(np.argmax(re))
-    if re[worst] >= -1e-9 * scale:
+    worst = least_stable_pole(poles)
+    if worst is not None:
         raise AnalysisError(
-            f"the operating point has a pole at {poles[worst]:.4g} rad/s (not in the left half "
+            f"the operating point has a pole at {worst:.4g} rad/s (not in the left half "
             f"plane), so a sine on {input!r} has no periodic steady state to measure; distortion "
             "needs a stable operating point (use measure=False for the prediction alone).")
-    return float(1.0 / np.min(-re))
+    return float(1.0 / np.min(-poles.real))
 
 
 def _warm_start(kernels: HarmonicKernels, op, a: float, thd: float, weak_limit: float):

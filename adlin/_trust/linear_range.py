@@ -31,6 +31,7 @@ from .._errors import AnalysisError, ParameterError, did_you_mean
 from .._system import System
 from .linear_response import linear_response
 from .range_result import LinearRange
+from .stable import least_stable_pole
 
 # Default run length and sine frequency, from the linear model's poles
 # (common practice: a first-order response settles to 5e-5 within 10 time
@@ -56,8 +57,8 @@ def _positive(name: str, value, *, above: float = 0.0, below: float = math.inf) 
 def _timing(lin, kind: str, f_hz, t_end, n_points, notes: list[str]):
     """(f_hz, t_end, n_points) with defaults from the poles; notes say which were chosen."""
     poles = np.asarray(lin.poles())
-    if poles.size and np.max(poles.real) >= -1e-12 * max(1.0, float(np.max(np.abs(poles)))):
-        worst = poles[np.argmax(poles.real)]
+    worst = least_stable_pole(poles)
+    if worst is not None:
         raise AnalysisError(
             f"the operating point is not stable (pole at {worst:.4g} rad/s), so a transient "
             "from it does not stay near the bias and no linear range exists; move the bias or "
