@@ -25,9 +25,21 @@ time constants, sines for the longer of that and 3 periods, sampled 401 times
 
 Nothing is random, so two runs give the same table (wall times aside).  The
 output is ONE table of errors, limits and distortion, then the solver's
-statistics (steps, rejected steps, wall times with the compilation of the
-fixed-grid program timed apart from its run), then the total wall time.
-Figures (error versus amplitude, one per example) go to ``--out``.
+statistics (steps, rejected steps, vector-field evaluations, wall times with
+the compilation of the fixed-grid program timed apart from its run), then the
+total wall time.  Figures (error versus amplitude, one per example) go to
+``--out``.
+
+Vector-field evaluations are derived, not counted: diffrax 0.7.2 reports
+steps but not the iterations of its stage solves.  With the default solver
+(`adlin.simulate`: Kvaerno5, seven stages, the first explicit, stages solved
+for increments so there is no first-same-as-last saving) every attempted
+step costs one evaluation for the explicit stage, one per chord iteration of
+each of the six implicit stages (at least 1, at most 10 each), and one
+Jacobian (one forward-mode pass with r tangents, r the number of ODE states);
+the first step's size is chosen with 2 more evaluations.  The table gives
+the range 7 steps + 2 .. 61 steps + 2 and the number of Jacobians (= steps).
+Every evaluation also solves the algebraic unknowns by Newton.
 
     python benchmarks/linearization_error.py                 # every example
     python benchmarks/linearization_error.py --quick         # the fastest example only
@@ -50,6 +62,7 @@ import numpy as np
 
 import adlin
 from adlin import stimuli
+from adlin._compile import compile as compile_system
 from adlin.cli.model_file import load_model
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -66,6 +79,10 @@ SAMPLES_PER_PERIOD = 100
 STEP_POINTS = 401
 RTOL = 1e-8
 MAX_STEPS = 50_000
+# Evaluations per attempted step of the default solver (see the module notes).
+EVALS_PER_STEP = (1 + 6 * 1, 1 + 6 * 10)
+EVALS_FIRST_STEP_SIZE = 2
+
 # linear_range searches from a_max * SEARCH_SPAN up to a_max (same span for
 # every call, so the batched transient program has the same lane count).
 SEARCH_SPAN = 1e-4
@@ -250,6 +267,7 @@ def bench_example(path: Path, out_dir: Path) -> dict:
     d, d_wall = hd(system, op, choice, setups["sine"], kinds["sine"]["ranges"][TOLS[0]][0])
     fig = figure(name, system, op, choice, kinds, out_dir)
     return {"name": name, "choice": choice, "kinds": kinds, "distortion": d,
+            "ode_states": compile_system(system).structure.n_dynamic,
             "distortion_s": d_wall, "figure": fig, "wall_s": time.perf_counter() - t_start,
             "unit": system.unit(choice.input)}
 
@@ -293,9 +311,10 @@ def report(results: list[dict], total_s: float) -> None:
                   "first - second call; searches reuse that program; distortion: wall time "
                   "including its compilation)",
                   title_justify="left")
-    for col in ("example", "stimulus", "grid runs", "grid steps", "grid rejected",
-                "max steps/run", "grid compile s", "grid run s", "search runs 1%/10%",
-                "search s 1%/10%", "HD steps", "HD rejected", "HD s", "example s"):
+    for col in ("example", "stimulus", "ODE states", "grid runs", "grid steps",
+                "grid rejected", "max steps/run", "grid vf evals (derived)", "grid compile s",
+                "grid run s", "search runs 1%/10%", "search s 1%/10%", "HD steps",
+                "HD rejected", "HD s", "example s"):
         stats.add_column(col, justify="left" if col in ("example", "stimulus") else "right")
     for res in results:
         if "skipped" in res:
@@ -318,9 +337,12 @@ def report(results: list[dict], total_s: float) -> None:
                          f"{_pct(g['errors'][at])} / {_pct(g['errors'][n + at])}",
                          _limits(r1, unit), _limits(r10, unit), r1.limiting, *hd_cells)
             s = d.settings if kind == "sine" else None
+            lo, hi = (k_ * g["steps"] + EVALS_FIRST_STEP_SIZE * 2 * n for k_ in EVALS_PER_STEP)
             stats.add_row(
-                res["name"], stim, f"{2 * n}" + (f" ({g['failed']} failed)" if g["failed"] else ""),
+                res["name"], stim, str(res["ode_states"]),
+                f"{2 * n}" + (f" ({g['failed']} failed)" if g["failed"] else ""),
                 str(g["steps"]), str(g["rejected"]), str(g["max_steps_one_run"]),
+                f"{lo}..{hi}",
                 f"{g['compile_s']:.1f}", f"{g['run_s']:.2f}",
                 f"{len(r1.amplitudes)}/{len(r10.amplitudes)}",
                 f"{k['ranges'][TOLS[0]][1]:.1f}/{k['ranges'][TOLS[1]][1]:.1f}",
@@ -338,6 +360,11 @@ def report(results: list[dict], total_s: float) -> None:
         for note in res["distortion"].notes:
             console.print(f"    distortion note: {note}")
     console.print(stats)
+    console.print(f"  grid vf evals: derived as {EVALS_PER_STEP[0]}..{EVALS_PER_STEP[1]} per "
+                  f"attempted step (explicit stage + 1..10 chord iterations in each of six "
+                  f"implicit stages) + {EVALS_FIRST_STEP_SIZE} per run for the first step size, "
+                  "plus one Jacobian (r forward tangents) per attempted step; diffrax does not "
+                  "report stage iterations (module notes)")
     console.print(f"total wall time {total_s:.1f} s ({len(results)} examples; jax "
                   f"{jax.__version__}, {jax.device_count()} CPU device(s))")
 

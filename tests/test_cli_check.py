@@ -165,3 +165,29 @@ def test_check_bad_option_is_one_sentence(extra, names, capsys, monkeypatch):
     assert err.startswith("adlin: error:") and "\n" not in err
     for name in names:
         assert name in err, err
+
+
+def test_waveform_panels_say_where_each_polarity_sits():
+    # Both polarities are drawn at the larger limit (edge_amplitude), so the
+    # polarity that limits first is beyond its own limit there; its panel
+    # said "(positive)" under a title "at the edge of the linear range" while
+    # showing a 2.4 % error for a 1 % tolerance (photodiode example).  The
+    # numbers are that run's limits.
+    import numpy as np
+
+    from adlin._trust.range_result import LinearRange
+    from adlin.report.trust import edge_amplitude, waveform_position
+
+    r = LinearRange(positive=3.741e-6, negative=-6.976e-6,
+                    positive_bracket=(3.741e-6, 3.7413e-6),
+                    negative_bracket=(-6.976e-6, -6.9765e-6), limiting="positive",
+                    amplitudes=np.array([1e-6]), errors=np.array([1e-3]), tol=0.01,
+                    kind="step", f_hz=None, t_end=1.1e-6, precision=1e-4, input="i_photo",
+                    output="v_out", notes=())
+    a = edge_amplitude(r)
+    assert a == pytest.approx(6.976e-6)
+    assert waveform_position(r, +1.0, a) == "beyond its limit 3.741e-06"
+    assert waveform_position(r, -1.0, a) == "at its limit 6.976e-06"
+    open_ended = LinearRange(**{**{f: getattr(r, f) for f in r.__dataclass_fields__},
+                                "negative_bracket": (-1e-5, -math.inf)})
+    assert waveform_position(open_ended, -1.0, a) == "no limit found"

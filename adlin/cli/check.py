@@ -107,7 +107,7 @@ def _distortion_amplitudes(ranges, given):
 def _waveforms(system, op, r, inp, out_name):
     from .. import stimuli
     from .._trust.compare import compare
-    from ..report.trust import Waveforms, edge_amplitude
+    from ..report.trust import Waveforms, edge_amplitude, waveform_position
 
     a = edge_amplitude(r)
     if a is None:
@@ -119,7 +119,7 @@ def _waveforms(system, op, r, inp, out_name):
         c = compare(system, op, stim, r.t_end, output=out_name, throw=False)
         y_nl, y_lin = c[out_name]
         label = (f"{'step' if r.kind == 'step' else 'sine'} of {sign * a:+.4g} on {inp}"
-                 f" ({polarity})")
+                 f" ({polarity}: {waveform_position(r, sign, a)})")
         shown.append(Waveforms(label, np.asarray(c.t), np.asarray(y_nl), np.asarray(y_lin),
                                float(c.peak_error[0])))
     return shown

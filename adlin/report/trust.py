@@ -64,6 +64,28 @@ def edge_amplitude(r) -> float | None:
     return max(limits) if limits else None
 
 
+def waveform_position(r, sign: float, a: float) -> str:
+    """Where amplitude `a` of one polarity sits against that polarity's own limit.
+
+    The waveform figure drives both polarities at `edge_amplitude` (the
+    larger limit), so the polarity that limits first is shown beyond its
+    limit; the panel title must say so rather than suggest both are at it.
+
+    **Arguments:** `r`: an `adlin.LinearRange`; `sign`: +1 or -1; `a`: the
+    amplitude shown (magnitude).
+
+    **Returns:** e.g. ``"at its limit 6.976e-06"``, ``"beyond its limit
+    3.741e-06"``, or ``"no limit found"``.
+    """
+    limit, bracket = ((r.positive, r.positive_bracket) if sign > 0
+                      else (r.negative, r.negative_bracket))
+    if not math.isfinite(bracket[1]):
+        return "no limit found"
+    limit = abs(float(limit))
+    where = "beyond" if a > limit * (1 + r.precision) else "at"
+    return f"{where} its limit {limit:.4g}"
+
+
 def _num(v):
     if v is None:
         return None

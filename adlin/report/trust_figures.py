@@ -68,7 +68,7 @@ def waveform_figure(s: CheckSummary):
         ax.set_ylabel(_unit(s.output, s.output_unit))
         ax.set_xlabel(f"time [{prefix}s]")
         ax.legend(frameon=False, fontsize=8, labelcolor=TEXT, loc="best")
-    fig.suptitle(f"{s.name}: responses at the edge of the linear range", color=TEXT,
+    fig.suptitle(f"{s.name}: responses at the larger of the two polarities' limits", color=TEXT,
                  fontsize=11, x=0.01, ha="left")
     return fig
 
