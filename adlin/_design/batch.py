@@ -31,6 +31,7 @@ from jax.sharding import AxisType, NamedSharding, PartitionSpec
 from .._errors import AnalysisError, ModelError, ParameterError, did_you_mean
 from .._steady.strategies.reasons import REASON_MESSAGES
 from .._system import System
+from .fast_path import FastPlans, plan_at
 from .quantities import AbstractQuantity, resolve_quantities
 from .sensitivities import COALESCE_RTOL, _pole_refs
 from .targets import as_targets
@@ -43,6 +44,10 @@ NON_FINITE_RESULT = 100
 # Largest per-sample LAPACK cost, batch * n^3, that one device's batched call
 # may have when several CPU devices run at once (see `device_chunk_limit`).
 _PARALLEL_LAPACK_BUDGET = 200_000
+# Runs of at least this many samples use the planned sparse solves by default
+# (`adlin._design.fast_path`): they save tens of microseconds per sample and
+# cost a few seconds of compilation, which pays off on large or repeated runs.
+FAST_SOLVES_FROM = 4096
 # Default samples per device and chunk on one device: big enough that
 # dispatch costs nothing next to the work, small enough for memory.
 _DEFAULT_PER_DEVICE = 2048
@@ -126,8 +131,10 @@ def chunk_size(requested: int | None, n_samples: int, n_devices: int, n_unknowns
 
 @functools.lru_cache(maxsize=32)
 def _program(compiled, param_index: tuple[int, ...], input_index: tuple[int, ...],
-             quantities: tuple[AbstractQuantity, ...], targets: tuple):
-    """jit(vmap(one sample)), built once per compiled System, names, quantities, targets."""
+             quantities: tuple[AbstractQuantity, ...], targets: tuple,
+             plans: FastPlans | None = None):
+    """jit(vmap(one sample)), built once per compiled System, names, quantities, targets
+    and solver plans (None: the general solvers; see `adlin._design.fast_path`)."""
     pi = np.asarray(param_index)
     ui = np.asarray(input_index)
     p_cols, p_at = np.flatnonzero(pi >= 0), pi[pi >= 0]
@@ -137,9 +144,12 @@ def _program(compiled, param_index: tuple[int, ...], input_index: tuple[int, ...
     def one(v, u0, p0, x0, refs):
         p = p0.at[p_at].set(v[p_cols]) if len(p_at) else p0
         u = u0.at[u_at].set(v[u_cols]) if len(u_at) else u0
-        op = compiled.solve(u, p, x0)
-        lin = compiled.linearize(op.x, u, p)
-        poles = lin.poles()
+        if plans is None:
+            op = compiled.solve(u, p, x0)
+            lin = compiled.linearize(op.x, u, p)
+            poles = lin.poles()
+        else:
+            op, lin, poles = plans.solve_point(compiled, u, p, x0)
         qs = jnp.zeros((0,), qdtype)
         if quantities:
             qs = jnp.stack([jnp.asarray(q.value(op, lin, refs[i]), qdtype)
@@ -228,6 +238,7 @@ def run_batch(
     progress: Callable[[int, int], Any] | None,
     what: str,
     nominal_op=None,
+    fast_solves: bool | None = None,
 ) -> BatchOutput:
     """Evaluate every row of `values` (columns: `names`) in chunks.
 
@@ -263,14 +274,20 @@ def run_batch(
     n = values.shape[0]
     size = chunk_size(chunk, n, len(devs), system.n)
     where = _placement(devs)
-    fn = _program(compiled, pidx, uidx, quantities, targets)
+    if fast_solves is None:
+        fast_solves = n >= FAST_SOLVES_FROM
+    elif not isinstance(fast_solves, bool):
+        raise ParameterError(f"fast_solves must be True, False or None (automatic), got "
+                             f"{fast_solves!r}.")
+    plans = plan_at(compiled, x0, u0, p0) if fast_solves else None
+    fast = _program(compiled, pidx, uidx, quantities, targets, plans)
     refs = jnp.asarray(refs)
 
-    def launch(start):
-        block = values[start:start + size]
+    def launch(fn, block):
         if block.shape[0] < size:  # pad with the nominal values: one compiled shape
             block = np.concatenate([block, np.tile(nominal_row, (size - block.shape[0], 1))])
-        return fn(_put(np.ascontiguousarray(block, dtype=np.float64), where), u0, p0, x0, refs)
+        return _fetch(fn(_put(np.ascontiguousarray(block, dtype=np.float64), where),
+                         u0, p0, x0, refs))
 
     parts: list[list[np.ndarray]] = []
     for start in range(0, n, size):
@@ -278,9 +295,17 @@ def run_batch(
         # nothing in a measurement (0.46 against 0.43-0.5 s for 10,000 samples of
         # the demo) and two programs' LAPACK calls must never run at once
         # (`device_chunk_limit`).
-        got = _fetch(launch(start))
-        take = min(size, n - start)
-        parts.append([a[:take] for a in got])
+        block = values[start:start + size]
+        got = [np.array(a[:block.shape[0]]) for a in launch(fast, block)]
+        again = np.flatnonzero(~got[2]) if plans is not None else np.zeros(0, int)
+        if again.size:
+            # samples the fast path did not finish (a planned solve failed its
+            # check, or the sample genuinely fails): the general solvers decide
+            general = _program(compiled, pidx, uidx, quantities, targets)
+            for a, b in zip(got, launch(general, block[again]), strict=True):
+                a[again] = b[:again.size]
+        take = block.shape[0]
+        parts.append(got)
         if progress is not None:
             progress(start + take, n)
     x, poles, ok, status, qs, met = (np.concatenate(col) for col in zip(*parts, strict=True))

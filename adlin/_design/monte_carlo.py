@@ -50,6 +50,7 @@ def monte_carlo(
     targets=(),
     chunk: int | None = None,
     devices=None,
+    fast_solves: bool | None = None,
     progress: Callable[[int, int], Any] | None = None,
 ) -> MonteCarloResult:
     """Spread of the bias point, poles and chosen quantities under part tolerances.
@@ -72,7 +73,7 @@ def monte_carlo(
     - `n`: number of samples (>= 1).
     - `seed`: integer seed of the random draws.
     - `inputs`, `params`: nominal overrides (the centre of the tolerances).
-    - `of`, `targets`, `chunk`, `devices`, `progress`: as `adlin.sweep`.
+    - `of`, `targets`, `chunk`, `devices`, `fast_solves`, `progress`: as `adlin.sweep`.
 
     **Returns:** a `MonteCarloResult` (per-sample arrays, `failures()`,
     `yield_fraction()` against `targets`, `summary()` of the distributions).
@@ -103,6 +104,7 @@ def monte_carlo(
     values = draw_samples(system, specs, nominal, int(n), int(seed))
     out = run_batch(system, names, values, inputs=inputs, params=params, of=of,
                     targets=targets, chunk=chunk, devices=devices, progress=progress,
+                    fast_solves=fast_solves,
                     what="monte_carlo")
     return MonteCarloResult(
         **BatchResult.fields_from(out, names, values, system.unknowns),

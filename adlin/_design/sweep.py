@@ -54,6 +54,7 @@ def sweep(
     targets=(),
     chunk: int | None = None,
     devices=None,
+    fast_solves: bool | None = None,
     progress: Callable[[int, int], Any] | None = None,
 ) -> SweepResult:
     """Steady state, small-signal poles, quantities and targets at every grid point.
@@ -76,6 +77,11 @@ def sweep(
       rounded to a multiple of the device count, and kept small enough with
       several CPU devices that batched LAPACK cannot deadlock (DEVELOPERS.md).
     - `devices`: the JAX devices to use (default all of `jax.devices()`).
+    - `fast_solves`: True: solve with sparse LU plans made at the nominal point
+      (`adlin._design.fast_path`; several times faster per sample, a few seconds
+      more compilation), re-running with the general solvers any sample they do
+      not finish; False: general solvers only; None (default): True from
+      4096 samples on.
     - `progress`: optional `progress(done, total)` called after each chunk.
 
     **Returns:** a `SweepResult` (`shape`, `grid(name)`, `reshape`, `failures()`,
@@ -88,6 +94,7 @@ def sweep(
     names, values, shape = _grid_values(grid, product)
     out = run_batch(system, names, values, inputs=inputs, params=params, of=of,
                     targets=targets, chunk=chunk, devices=devices, progress=progress,
+                    fast_solves=fast_solves,
                     what="sweep")
     return SweepResult(**BatchResult.fields_from(out, names, values, system.unknowns),
                        shape=shape, product=bool(product))

@@ -15,8 +15,12 @@ from __future__ import annotations
 import jax.numpy as jnp
 
 
-def reduce_descriptor(E, A, B, C, D, left, right, r: int):
+def reduce_descriptor(E, A, B, C, D, left, right, r: int, solve_a22=jnp.linalg.solve,
+                      solve_e11=jnp.linalg.solve):
     """Return (Ar, Br, Cr, Dr, off_block, a22_cond) for the state-space form with E = I.
+
+    `solve_a22`, `solve_e11` solve with the blocks A22 and E11 (the batch engine
+    passes fixed-order sparse solvers, `adlin._sparse_lu`).
 
     `off_block` is max |E12|,|E21|,|E22| relative to max |E11|: near zero when the
     compile-time partition holds at this operating point.
@@ -30,7 +34,7 @@ def reduce_descriptor(E, A, B, C, D, left, right, r: int):
     B1, B2 = Bp[:r], Bp[r:]
     C1, C2 = Cp[:, :r], Cp[:, r:]
     if A22.shape[0]:
-        X = jnp.linalg.solve(A22, jnp.concatenate([A21, B2], axis=1))
+        X = solve_a22(A22, jnp.concatenate([A21, B2], axis=1))
         X21, XB = X[:, :r], X[:, r:]
         As = A11 - A12 @ X21
         Bs = B1 - A12 @ XB
@@ -41,7 +45,7 @@ def reduce_descriptor(E, A, B, C, D, left, right, r: int):
         As, Bs, Cr, Dr = A11, B1, C1, D
         a22_cond = jnp.asarray(1.0)
     if r:
-        Y = jnp.linalg.solve(E11, jnp.concatenate([As, Bs], axis=1))
+        Y = solve_e11(E11, jnp.concatenate([As, Bs], axis=1))
         Ar, Br = Y[:, :r], Y[:, r:]
         scale = jnp.max(jnp.abs(E11))
     else:

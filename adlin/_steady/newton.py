@@ -135,6 +135,7 @@ def newton_solve(
     opts: NewtonOptions,
     active=True,
     value_and_jacobian: Callable[[jax.Array], tuple[jax.Array, jax.Array]] | None = None,
+    linear_solve: Callable[[jax.Array, jax.Array], jax.Array] = jnp.linalg.solve,
 ) -> NewtonResult:
     """Solve fun(x) = 0 from x0. Pure JAX; never raises on non-convergence.
 
@@ -148,6 +149,8 @@ def newton_solve(
     The model is traced twice (value+Jacobian, and value for the line search)
     to keep compilation short.  `value_and_jacobian(x) -> (f, df/dx)`, if
     given, replaces forward-mode AD of `fun` (a cheaper exact Jacobian).
+    `linear_solve(J, rhs)` solves for the Newton step; it must return non-finite
+    values where it cannot solve (the batch engine passes `adlin._sparse_lu`).
     """
     n = x0.shape[0]
 
@@ -172,7 +175,7 @@ def newton_solve(
     def body(state):
         x = state["x"]
         J, f = value_and_jac(x)
-        dx = jnp.linalg.solve(J, -f)
+        dx = linear_solve(J, -f)
         f_tol, x_tol, row_scale = _tolerances(J, x, opts)
         finite = jnp.all(jnp.isfinite(f)) & jnp.all(jnp.isfinite(J))
         solved = jnp.all(jnp.isfinite(dx))
