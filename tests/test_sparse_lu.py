@@ -49,6 +49,32 @@ def test_planned_solve_equals_lapack_on_matrices_of_the_pattern(seed, n, spread)
     np.testing.assert_allclose(x[ok], ref[ok], rtol=1e-8, atol=1e-10 * np.abs(ref).max())
 
 
+@settings(max_examples=12, deadline=None)
+@given(seed=st.integers(0, 2**31 - 1))
+def test_badly_scaled_rows_and_zero_right_hand_sides_are_accepted(seed):
+    """Circuit rows mix siemens and volts, and Newton's steps near a solution mix
+    sizes and exact zeros: a well-conditioned (after row scaling) system must not
+    be refused, and must match LAPACK.  (A row-by-row check against the row's own
+    products |M_ij x_j| refused such systems: rounding in x is relative to max |x|.)"""
+    rng = np.random.default_rng(seed)
+    n = 12
+    M0 = _pattern_matrix(rng, n, 0.3) * 10.0 ** rng.uniform(-12, 0, size=(n, 1))
+    plan = SparseLU.from_matrix(M0)
+    Ms = M0 * (1.0 + 0.2 * rng.uniform(-1, 1, size=(8, n, n)))
+    # steps whose entries span many decades (a branch current of 1e-21 A beside
+    # a node moving by 1 mV), some exactly zero
+    x_true = rng.normal(size=(8, n)) * 10.0 ** rng.uniform(-22, -3, size=(8, n))
+    x_true[:, rng.uniform(size=n) < 0.3] = 0.0
+    b = np.einsum("kij,kj->ki", Ms, x_true)
+    x = np.asarray(jax.jit(jax.vmap(plan.solve))(jnp.asarray(Ms), jnp.asarray(b)))
+    scaled = Ms / np.abs(Ms).max(axis=2, keepdims=True)
+    well = np.linalg.cond(scaled) < 1e6
+    assert np.all(np.isfinite(x[well]))
+    ref = np.linalg.solve(Ms, b[..., None])[..., 0]
+    for k in np.flatnonzero(well):
+        np.testing.assert_allclose(x[k], ref[k], rtol=1e-7, atol=1e-9 * np.abs(ref[k]).max())
+
+
 def test_mna_like_matrix_with_zero_diagonal_needs_the_planned_row_order():
     # a voltage source's branch row has a zero diagonal entry: the plan's row
     # order (from partial pivoting on the reference) must move it
