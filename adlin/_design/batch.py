@@ -45,8 +45,9 @@ NON_FINITE_RESULT = 100
 # may have when several CPU devices run at once (see `device_chunk_limit`).
 _PARALLEL_LAPACK_BUDGET = 200_000
 # Runs of at least this many samples use the planned sparse solves by default
-# (`adlin._design.fast_path`): they save tens of microseconds per sample and
-# cost a few seconds of compilation, which pays off on large or repeated runs.
+# (`adlin._design.fast_path`): on the demo regulator they save 10-15 us of
+# ~50 us per sample and cost 5-10 s more compilation, which pays off only on
+# large or repeated runs (the CLI keeps compiled programs on disk).
 FAST_SOLVES_FROM = 4096
 # Default samples per device and chunk on one device: big enough that
 # dispatch costs nothing next to the work, small enough for memory.
@@ -280,7 +281,7 @@ def run_batch(
         raise ParameterError(f"fast_solves must be True, False or None (automatic), got "
                              f"{fast_solves!r}.")
     plans = plan_at(compiled, x0, u0, p0) if fast_solves else None
-    fast = _program(compiled, pidx, uidx, quantities, targets, plans)
+    program = _program(compiled, pidx, uidx, quantities, targets, plans)
     refs = jnp.asarray(refs)
 
     def launch(fn, block):
@@ -296,10 +297,10 @@ def run_batch(
         # the demo) and two programs' LAPACK calls must never run at once
         # (`device_chunk_limit`).
         block = values[start:start + size]
-        got = [np.array(a[:block.shape[0]]) for a in launch(fast, block)]
+        got = [np.array(a[:block.shape[0]]) for a in launch(program, block)]
         again = np.flatnonzero(~got[2]) if plans is not None else np.zeros(0, int)
         if again.size:
-            # samples the fast path did not finish (a planned solve failed its
+            # samples the planned program did not finish (a planned solve failed its
             # check, or the sample genuinely fails): the general solvers decide
             general = _program(compiled, pidx, uidx, quantities, targets)
             for a, b in zip(got, launch(general, block[again]), strict=True):
