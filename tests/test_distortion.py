@@ -362,12 +362,12 @@ def test_errors_name_the_culprit():
 
 # --- measured: FFT of the periodic transient ------------------------------------------------
 @functools.cache
-def _measured(name: str, f_hz: float, amplitudes: tuple[float, ...]):
+def _measured(name: str, f_hz: float, amplitudes: tuple[float, ...], options=None):
     system, op = _op(name)
     inp, out = {"bjt": ("v_be", "v_c"), "mos": ("v_gs", "v_d"), "diode": ("v_s", "v"),
                 "degenerated": ("v_b", "v_c")}[name]
     return adlin.distortion(system, op, input=inp, output=out, amplitude=np.array(amplitudes),
-                      f_hz=f_hz)
+                      f_hz=f_hz, options=options)
 
 
 @pytest.mark.slow
@@ -416,8 +416,15 @@ def test_measured_with_memory_follows_prediction(f_hz):
     # Ehrman & Graham 1974): at a weak drive the measurement must agree with it
     # to the size of the next term, and the relative difference in HD2 must grow
     # as a^2 (the next term of the series is two orders of a higher).
+    # The transient's own error must sit far below the 5e-4 compared here: at
+    # the default rtol 1e-9 the 2 MHz measurement of HD2 at 10 mV was 7e-4 off
+    # the prediction (3.5e-3 for HD3 at 300 kHz), at rtol 1e-11 4e-7 off, so
+    # the two fast tones run at 1e-11.  (At 1 kHz the default passes; at 1e-11
+    # the a^2 ratio of the 1e-5-sized differences below came out 3.0, not
+    # understood yet.)
     amps = (1e-2, 2e-2, 4e-2)
-    d = _measured("diode", f_hz, amps)
+    options = adlin.DistortionOptions(rtol=1e-11) if f_hz > 1e3 else None
+    d = _measured("diode", f_hz, amps, options)
     np.testing.assert_allclose(np.asarray(d.measured_hd2), np.asarray(d.predicted_hd2),
                                rtol=5e-4)
     # HD3 at the smallest amplitude at 2 MHz sits near the record's noise floor
