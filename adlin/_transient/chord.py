@@ -24,10 +24,15 @@ floor.  Near a steady state the predictor is nearly exact and the updates
 are rounding noise of the vector field, so their ratio theta is a random
 number about 1; a ratio test alone then reports divergence (or runs out of
 iterations) on updates a million times below the tolerance and the step is
-rejected, whatever its size.  The demo regulator (poles from 1e3 to 1.8e12
-rad/s, the algebraic unknowns re-solved by Newton in every evaluation) lost
-more than half of its steps that way and collapsed to 1e-13 s steps once
-it had settled; see `adlin/_transient/simulate.py`.
+rejected, whatever its size.  With diffrax's own iteration (and stages
+already in increment form) the diode clipper example's 1 V step used a
+20,000-step budget, 11,608 steps rejected; with this one it takes 400 steps,
+none rejected.  On the demo regulator's line step it took 429 steps against
+459 and half the run time (2026-12-02).
+
+An explicit stage (zero diagonal coefficient, the first stage of Kvaerno5)
+has the identity as Jacobian, but diffrax passes it the matrix kept from the
+previous step; `step` then takes the exact update instead.
 
 Used with the stage values in increment form (k = h f, the unknowns' own
 units: `adlin._transient.term.IncrementTerm`), so the step controller's
