@@ -1,6 +1,8 @@
 """Throughput: steady state + linearization + poles for many parameter samples.
 
-adlin (one jit + vmap over the batch) against the per-sample loop an engineer
+adlin (`adlin.sweep` over the sample rows: one jit + vmap program run over
+chunks, with the planned sparse solves of `adlin._design.fast_path` at this
+size) against the per-sample loop an engineer
 would otherwise write (`scipy_loop.py`): scipy.optimize.root on the residual, a
 central finite-difference Jacobian, and the finite generalized eigenvalues of
 (A, E) from scipy.linalg.eigvals.  Both run in this process on the same samples of
