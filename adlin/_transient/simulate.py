@@ -40,6 +40,8 @@ import equinox as eqx
 import jax
 import jax.numpy as jnp
 import numpy as np
+import optimistix as optx
+from diffrax._root_finder import use_stepsize_tol
 
 from .._errors import AdlinError, ModelError, ParameterError
 from .._steady.operating_point import OperatingPoint
@@ -91,25 +93,35 @@ def _differentiated(*xs) -> bool:
 
 
 def _program(compiled, solver, rtol: float, max_steps: int, step_on_grid: bool,
-             reverse: bool):
+             reverse: bool, planned: bool = False):
     """The jitted transient program for (System, solver, settings), built once."""
     entry = _CACHE.setdefault(compiled, {})
-    key = ("program", solver, rtol, max_steps, step_on_grid, reverse)
+    key = ("program", solver, rtol, max_steps, step_on_grid, reverse, planned)
     try:
         prog = entry.get(key)
     except TypeError:  # an unhashable solver: key it by identity
-        key = ("program", id(solver), rtol, max_steps, step_on_grid, reverse)
+        key = ("program", id(solver), rtol, max_steps, step_on_grid, reverse, planned)
         prog = entry.get(key)
     if prog is None:
         prog = jax.jit(_make_run(reduced_field(compiled), solver, rtol, max_steps,
-                                 step_on_grid, reverse))
+                                 step_on_grid, reverse, planned))
         entry[key] = prog
     return prog
 
 
 def _make_run(field: ReducedField, solver, rtol: float, max_steps: int, step_on_grid: bool,
-              reverse: bool):
+              reverse: bool, planned: bool = False):
     system = field.system
+
+    def solver_of(atol):
+        # A planned run has no step controller to lend its tolerances to an
+        # implicit solver's stage iteration (diffrax refuses that): set them here.
+        if not (planned and isinstance(solver, diffrax.AbstractImplicitSolver)):
+            return solver
+        own = {"rtol": rtol, "atol": atol, "norm": optx.max_norm}
+        names = [n for n in own if getattr(solver.root_finder, n, None) is use_stepsize_tol]
+        return eqx.tree_at(lambda s: tuple(getattr(s.root_finder, n) for n in names), solver,
+                           tuple(own[n] for n in names))
 
     def vf(t, z, args):
         u0, p, x_ref, stim = args
@@ -120,13 +132,16 @@ def _make_run(field: ReducedField, solver, rtol: float, max_steps: int, step_on_
     implicit = isinstance(solver, diffrax.AbstractImplicitSolver)
     term = IncrementTerm(vf) if implicit else diffrax.ODETerm(vf)
 
-    def run(z0, x_ref, u0, p, stim, ts, t_end, jumps, atol):
+    def run(z0, x_ref, u0, p, stim, ts, t_end, jumps, atol, plan):
         us = u0[None, :] + jax.vmap(lambda t: input_deviation(system, stim, t))(ts)
         if field.r:
-            controller = diffrax.PIDController(rtol=rtol, atol=atol, jump_ts=jumps,
-                                               step_ts=ts if step_on_grid else None)
+            if planned:  # equal steps of the given size, no error control (see `simulate`)
+                controller = diffrax.ConstantStepSize()
+            else:
+                controller = diffrax.PIDController(rtol=rtol, atol=atol, jump_ts=jumps,
+                                                   step_ts=ts if step_on_grid else None)
             sol = diffrax.diffeqsolve(
-                term, solver, t0=jnp.asarray(0.0), t1=t_end, dt0=None, y0=z0,
+                term, solver_of(atol), t0=jnp.asarray(0.0), t1=t_end, dt0=plan, y0=z0,
                 args=(u0, p, x_ref, stim), saveat=diffrax.SaveAt(ts=ts),
                 stepsize_controller=controller, max_steps=max_steps, throw=False,
                 adjoint=diffrax.RecursiveCheckpointAdjoint() if reverse else
@@ -244,6 +259,7 @@ def simulate(
     max_steps: int = 100_000,
     solver: diffrax.AbstractSolver | None = None,
     step_on_grid: bool = True,
+    dt: float | None = None,
     throw: bool = True,
 ) -> Transient:
     """Nonlinear transient from an operating point (or a given state) to `t_end`.
@@ -281,6 +297,14 @@ def simulate(
       output times and fills them from the solver's interpolant: fewer steps
       on dense grids, but samples only as accurate as the interpolant
       (about 1e-6 relative with the default tolerance on an RC step).
+    - `dt`: None (default) lets the error control choose the steps.  A step
+      size instead fixes the step plan: equal steps of `dt` from 0 (the last
+      one shortened to end on `t_end`), with no error control; outputs
+      between step ends come from the solver's interpolant.  When `dt`
+      divides the period of a periodic drive every period gets the same
+      steps, so the integration error is itself periodic (`adlin.distortion`
+      measures with such a plan).  `rtol` and `atol` then only end the stage
+      iterations of an implicit solver.
     - `throw`: raise when the run does not reach `t_end`; with False the
       result carries `status`, `reached` and NaN samples after `reached`.
 
@@ -313,6 +337,16 @@ def simulate(
         raise ParameterError(f"solver must be a diffrax solver, e.g. diffrax.Kvaerno5(), got "
                              f"{solver!r}.")
     ts = _grid(t, t_end_f, n_points)
+    if dt is not None:
+        try:
+            dt_f = float(dt)
+        except (TypeError, jax.errors.ConcretizationTypeError):
+            raise ParameterError("dt must be a concrete step size in seconds or None.") from None
+        if not (math.isfinite(dt_f) and dt_f > 0):
+            raise ParameterError(f"dt must be a positive step size in seconds, got {dt!r}.")
+        if math.ceil(t_end_f / dt_f) > max_steps:
+            raise ParameterError(f"{math.ceil(t_end_f / dt_f)} steps of dt={dt_f:g} s do not fit "
+                                 f"in max_steps={max_steps}; raise max_steps or use a larger dt.")
 
     compiled = compile(system)
     field = reduced_field(compiled)
@@ -329,12 +363,13 @@ def simulate(
     edges = stimulus_edges(items, 0.0, t_end_f)
     jumps = jnp.asarray(edges) if edges else None
 
-    args = (z0, op.x, op.u, op.p, items, jnp.asarray(ts), jnp.asarray(t_end_f), jumps, atol_v)
+    args = (z0, op.x, op.u, op.p, items, jnp.asarray(ts), jnp.asarray(t_end_f), jumps, atol_v,
+            None if dt is None else jnp.asarray(dt_f))
     # Reverse-mode derivatives need diffrax's checkpointed loop; a plain run (or
     # forward-mode derivatives) takes the lighter loop: about a third less
     # tracing on the demo regulator.  Derivatives always show up as JVP tracers.
     prog = _program(compiled, solver, float(rtol), int(max_steps), bool(step_on_grid),
-                    _differentiated(args))
+                    _differentiated(args), dt is not None)
     xs, ys, us, code, reached, stats = prog(*args)
     tr = Transient(
         t=jnp.asarray(ts), x=xs, y=ys, u=us, status=code, reached=reached,

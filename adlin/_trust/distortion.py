@@ -18,7 +18,6 @@ from .._errors import AnalysisError, ModelError, ParameterError, did_you_mean
 from .._system import System
 from .distortion_options import DistortionOptions
 from .distortion_result import Distortion, MeasurementSettings
-from .harmonics import coherent_spectrum
 from .stable import least_stable_pole
 from .volterra import HarmonicKernels, harmonic_kernels
 
@@ -85,7 +84,10 @@ def distortion(
     of the nonlinear model driven by ``amplitude * sin(2 pi f_hz t)``, started
     from the predicted periodic state, run until the slowest time constant has
     settled, then `measured_periods` whole periods sampled coherently and
-    transformed by the FFT (no window).
+    transformed by the FFT (no window).  The transient takes equal steps that
+    divide the period (a periodic step plan), halved until no HDk moves by
+    more than `options.rtol`; `settings` says which steps were used and the
+    error estimate they leave.
 
     **Arguments:**
 
@@ -212,9 +214,19 @@ def _warm_start(kernels: HarmonicKernels, op, a: float, thd: float, weak_limit: 
     return jnp.asarray(x + a**2 * np.asarray(kernels.x20[:, 0]) + wave)
 
 
+def _state_swing(system: System, kernels: HarmonicKernels, a: float) -> np.ndarray:
+    """Predicted peak swing of each ODE state of the transient for amplitude a."""
+    from .._compile import compile
+    from .._transient.simulate import reduced_field
+
+    P1 = np.asarray(reduced_field(compile(system)).P1)
+    return 2.0 * a * np.abs(P1 @ np.asarray(kernels.x1[:, 0]))
+
+
 def _measure(system, op, pred: Distortion, i_in, i_out, options: DistortionOptions) -> Distortion:
     from .._transient.simulate import simulate
     from .distortion_tone import DistortionTone
+    from .periodic_record import STAGE_RTOL, periodic_record, stage_tolerance
 
     notes = list(_weak_notes(pred, options))
     tau = _slowest_time_constant(system, op, pred.input)
@@ -227,31 +239,50 @@ def _measure(system, op, pred: Distortion, i_in, i_out, options: DistortionOptio
                      f"({options.settle_time_constants * tau:.3g} s) would take more than "
                      f"max_periods={options.max_periods} periods; only {discard} periods were "
                      "discarded (see period_change).")
+    # The record's grid has the same shape at every frequency and settling, so
+    # one transient program serves them all (dt, t_end and the grid are data).
     t_grid = (discard + np.arange(M * N) / N) * period
     t_end = (discard + M) * period
 
-    amps, floors, changes, steps, rejected = [], [], [], [], []
+    records = []
     y_op = float(np.asarray(op.y)[i_out])
+    x_op = np.asarray(op.x)
     for a, thd in zip(np.asarray(pred.amplitude), np.asarray(pred.predicted_thd), strict=True):
         x0 = _warm_start(pred.kernels, op, float(a), float(thd), options.weak_limit)
-        tr = simulate(system, DistortionTone(pred.input, float(a), pred.f_hz), t_end, op=op, x0=x0,
-                      t=t_grid, rtol=options.rtol, max_steps=options.max_steps)
-        y = np.asarray(tr.y)[:, i_out] - y_op
-        spec = coherent_spectrum(y, M, N, options.n_harmonics)
-        amps.append(np.asarray(spec.amplitudes))
-        floors.append(float(spec.noise_floor))
-        changes.append(float(spec.period_change))
-        steps.append(int(tr.steps))
-        rejected.append(int(tr.rejected_steps))
-    harm = np.stack(amps)
+        atol = stage_tolerance(_state_swing(system, pred.kernels, float(a)),
+                               _dynamic_part(system, x_op), options.rtol)
+        tone = DistortionTone(pred.input, float(a), pred.f_hz)
+
+        def run(m, tone=tone, x0=x0, atol=atol):
+            tr = simulate(system, tone, t_end, op=op, x0=x0, t=t_grid, rtol=STAGE_RTOL,
+                          atol=atol, dt=period / (N * m), max_steps=options.max_steps)
+            return np.asarray(tr.y)[:, i_out] - y_op, int(tr.steps), int(tr.rejected_steps)
+
+        records.append(periodic_record(run, periods_total=discard + M, periods=M, samples=N,
+                                       n_harmonics=options.n_harmonics, accuracy=options.rtol,
+                                       max_steps=options.max_steps))
+    harm = np.stack([np.asarray(r.spectrum.amplitudes) for r in records])
     m_hd2, m_hd3 = harm[:, 2] / harm[:, 1], harm[:, 3] / harm[:, 1]
     m_thd = np.sqrt(np.sum(harm[:, 2:] ** 2, axis=1)) / harm[:, 1]
-    floors_a, changes_a = np.asarray(floors), np.asarray(changes)
-    notes += _comparison_notes(pred, m_hd2, m_hd3, floors_a, changes_a, options)
+    floors_a = np.asarray([float(r.spectrum.noise_floor) for r in records])
+    changes_a = np.asarray([float(r.spectrum.period_change) for r in records])
+    errors_a = np.asarray([r.harmonic_error for r in records])
+    for a, r in zip(np.asarray(pred.amplitude), records, strict=True):
+        if not r.converged:
+            notes.append(f"at amplitude {a:.4g} the measured harmonics still moved by "
+                         f"{r.harmonic_error:.2g} (of the fundamental) when the steps were halved "
+                         f"to T/{N * r.steps_per_sample}, more than rtol={options.rtol:g}: "
+                         "rounding or the step budget (max_steps) limits the measurement; "
+                         "loosen rtol or raise max_steps.")
+    notes += _comparison_notes(pred, m_hd2, m_hd3, np.maximum(floors_a, errors_a), changes_a,
+                               options)
     settings = MeasurementSettings(
         periods_simulated=discard + M, periods_discarded=discard, periods_measured=M,
         samples_per_period=N, slowest_time_constant_s=tau, settle_time_s=discard * period,
-        rtol=options.rtol, steps=jnp.asarray(steps), rejected_steps=jnp.asarray(rejected),
+        rtol=options.rtol, steps=jnp.asarray([r.steps for r in records]),
+        rejected_steps=jnp.asarray([r.rejected_steps for r in records]),
+        steps_per_sample=jnp.asarray([r.steps_per_sample for r in records]),
+        harmonic_error=jnp.asarray(errors_a),
     )
     return Distortion(**{
         **_fields(pred),
@@ -260,6 +291,14 @@ def _measure(system, op, pred: Distortion, i_in, i_out, options: DistortionOptio
         "noise_floor": jnp.asarray(floors_a), "period_change": jnp.asarray(changes_a),
         "settings": settings, "notes": tuple(notes),
     })
+
+
+def _dynamic_part(system: System, x) -> np.ndarray:
+    """The ODE state (dynamic coordinates) of a vector of unknowns."""
+    from .._compile import compile
+    from .._transient.simulate import reduced_field
+
+    return np.asarray(reduced_field(compile(system)).P1) @ np.asarray(x)
 
 
 def _comparison_notes(pred, m_hd2, m_hd3, floors, changes, options) -> list[str]:
@@ -272,9 +311,10 @@ def _comparison_notes(pred, m_hd2, m_hd3, floors, changes, options) -> list[str]
             notes.append(f"at amplitude {a:.4g} the last two periods differ by {changes[i]:.2g} "
                          "of the fundamental: the record had not settled; raise "
                          "settle_time_constants or max_periods in DistortionOptions.")
-        # A harmonic is resolved only well above both the spectrum's noise floor and
-        # the transient's relative tolerance: integration error repeats every period,
-        # so it lands on the harmonic bins, not in the floor between them.
+        # A harmonic is resolved only well above the spectrum's noise floor, the
+        # step-halving error estimate and the accuracy asked for: on a periodic step
+        # plan the integration error repeats every period, so it lands on the
+        # harmonic bins, not in the floor between them.
         resolution = RESOLVED_FACTOR * max(floors[i], options.rtol)
         for k in (2, 3):
             p, m = p_hd[k][i], m_hd[k][i]

@@ -39,9 +39,15 @@ class DistortionOptions(eqx.Module):
       more, the cap is used and the result says so.
     - `n_harmonics`: highest harmonic measured (THD sums harmonics 2 ..
       `n_harmonics`).
-    - `rtol`: relative tolerance of the transient (absolute tolerance
-      `rtol` times the output swing scale, chosen by `simulate`).
-    - `max_steps`: step budget of one transient.
+    - `rtol`: accuracy asked of each measured HDk, relative to the
+      fundamental (absolute in HDk: 1e-9 resolves an HD3 of 1e-6 to 0.1 %).
+      The transient steps with equal steps T / (N m), m = 1, 2, 4 ... until
+      halving them changes no HDk by more than `rtol` (see
+      `adlin._trust.periodic_record`); its stage iterations end on
+      tolerances scaled to each state's predicted swing.  Float64 rounding
+      stops the refinement near 1e-12 .. 1e-13.
+    - `max_steps`: step budget of one transient (the plan is not refined
+      past it).
     - `part_ways`: relative difference between predicted and measured HD2 or
       HD3 above which the result adds a note (0.1 = 10 %).
     - `weak_limit`: predicted THD above which the amplitude is called beyond

@@ -17,8 +17,14 @@ class MeasurementSettings(eqx.Module):
     - `slowest_time_constant_s`: 1 / min |Re p| over the small-signal poles,
       which sets the settling discarded (0 for a model without poles).
     - `settle_time_s`: time simulated before the record.
-    - `rtol`: the transient's relative tolerance.
-    - `steps`, `rejected_steps`: the solver's steps per amplitude.
+    - `rtol`: the accuracy asked of each measured HDk, relative to the
+      fundamental (`DistortionOptions.rtol`).
+    - `steps`, `rejected_steps`: the solver's steps per amplitude (last run).
+    - `steps_per_sample`: m per amplitude: the transient took equal steps of
+      T / (N m), refined by halving until HDk stopped moving.
+    - `harmonic_error`: per amplitude, the largest change of an HDk at the
+      last halving of the steps (the measurement's error estimate; inf when
+      the plan could not be refined).
     """
 
     periods_simulated: int = eqx.field(static=True)
@@ -30,6 +36,8 @@ class MeasurementSettings(eqx.Module):
     rtol: float = eqx.field(static=True)
     steps: Int[Array, " a"]
     rejected_steps: Int[Array, " a"]
+    steps_per_sample: Int[Array, " a"]
+    harmonic_error: Float[Array, " a"]
 
 
 class Distortion(eqx.Module):
@@ -131,6 +139,9 @@ class Distortion(eqx.Module):
             s = self.settings
             lines.append(f"record: {s.periods_measured} periods x {s.samples_per_period} samples "
                          f"after {s.periods_discarded} discarded (slowest time constant "
-                         f"{s.slowest_time_constant_s:.3g} s), rtol {s.rtol:g}")
+                         f"{s.slowest_time_constant_s:.3g} s); steps of T/"
+                         f"{s.samples_per_period * int(np.max(np.asarray(s.steps_per_sample)))}, "
+                         f"HDk error <= {float(np.max(np.asarray(s.harmonic_error))):.2g} "
+                         f"(asked {s.rtol:g})")
         lines += [f"note: {n}" for n in self.notes]
         return "\n".join(lines)
