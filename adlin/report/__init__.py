@@ -14,6 +14,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+import jax
 import numpy as np
 
 from .._errors import AnalysisError, ParameterError, did_you_mean
@@ -195,7 +196,9 @@ def summarize(
 
     # Reduce once (checks the index at this bias); poles, zeros, gains and the
     # normalized form of the reduced model are those of the full one.
-    reduced = model.reduce()
+    # Host (numpy) copies of the reduced matrices: the per-pair column and row
+    # picks below are then numpy slices, not one small compiled program each.
+    reduced = jax.tree.map(np.asarray, model.reduce())
     poles = group_roots(np.asarray(reduced.poles()))
     unstable = [r for r in poles if r.value.real > 0]
     if unstable:
@@ -260,7 +263,13 @@ def _normalized(model, unit_of, warnings: list[str]) -> Normalized | None:
     ):
         for name, value in zip(names, np.asarray(values), strict=True):
             scales.append((kind, name, float(value), unit_of(name), origin.get(name, "")))
-    gains = tuple((k, float(v)) for k, v in nm.gains().items())
-    ratios = tuple(float(r) for r in np.asarray(nm.time_constant_ratios()))
-    poles = tuple(complex(p) for p in np.asarray(nm.poles()))
+    # nm.gains() and nm.time_constant_ratios() in numpy, from one evaluation each
+    # of dc_gain and poles: indexing JAX arrays here would compile a small
+    # program per operation on every run.
+    G = np.asarray(nm.dc_gain())
+    gains = tuple((f"{o}/{i}", float(G[a, b])) for a, o in enumerate(nm.output_names)
+                  for b, i in enumerate(nm.input_names))
+    dimensionless = np.asarray(nm.poles())
+    ratios = tuple(float(r) for r in 1.0 / np.abs(dimensionless))  # slowest first
+    poles = tuple(complex(p) for p in dimensionless)
     return Normalized(float(nm.time_scale), tuple(scales), gains, ratios, poles)
