@@ -128,6 +128,23 @@ def test_rc_step_equals_closed_form():
                                rtol=0, atol=1e-9)
 
 
+def test_fixed_step_plan_converges_at_the_solver_order():
+    """Equal steps (dt given, no error control) on the RC free response v = V exp(-t/RC)
+    (Alexander & Sadiku, 5th ed., sec. 7.2, from memory): the error of Kvaerno5, an
+    order-5 method (Kvaerno, BIT 44, 2004), must fall about 2^5 per halving of dt in
+    the non-stiff range (accepted above 2^4), and the run takes exactly the planned steps."""
+    tau = RC_R * RC_C
+    t = np.linspace(0.0, 5 * tau, 41)
+    errors = []
+    for n in (4, 8, 16):
+        tr = adlin.simulate(rc(), Step("v_in", 0.0), 5 * tau, x0={"v_out": 0.5}, t=t,
+                            dt=tau / n)
+        assert int(tr.steps) == 5 * n and int(tr.rejected_steps) == 0
+        errors.append(np.max(np.abs(np.asarray(tr["v_out"]) - 0.5 * np.exp(-t / tau))))
+    assert errors[0] / errors[1] > 16 and errors[1] / errors[2] > 16
+    assert errors[2] < 1e-8
+
+
 @pytest.mark.slow
 def test_edges_reach_the_step_controller():
     """A 10 us pulse inside a 20 ms window, output every 2 ms, steps allowed to span
@@ -270,6 +287,10 @@ def test_bad_arguments_are_named():
     op = adlin.steady_state(rc())
     with pytest.raises(adlin.ParameterError, match="either op"):
         adlin.simulate(rc(), Step("v_in", 1.0), 1e-3, op=op, params={"R": 2e3})
+    with pytest.raises(adlin.ParameterError, match="dt must be a positive"):
+        adlin.simulate(rc(), Step("v_in", 1.0), 1e-3, dt=-1e-6)
+    with pytest.raises(adlin.ParameterError, match="max_steps=10"):
+        adlin.simulate(rc(), Step("v_in", 1.0), 1e-3, dt=1e-6, max_steps=10)
     tr = adlin.simulate(rc(), Step("v_in", 1.0), 5e-3)
     with pytest.raises(adlin.ParameterError, match="'v_ot'.*'v_out'"):
         tr["v_ot"]
