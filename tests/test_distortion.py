@@ -358,6 +358,9 @@ def test_errors_name_the_culprit():
         adlin.distortion(system, op, input="v_s", output="v", amplitude=1e-3, f_hz=0.0)
     with pytest.raises(adlin.ParameterError, match="samples_per_period"):
         adlin.DistortionOptions(samples_per_period=12)
+    with pytest.raises(adlin.ParameterError, match="max_steps=100"):
+        adlin.distortion(system, op, input="v_s", output="v", amplitude=1e-3, f_hz=1e3,
+                         options=adlin.DistortionOptions(max_steps=100))
 
 
 # --- measured: FFT of the periodic transient ------------------------------------------------

@@ -239,6 +239,11 @@ def _measure(system, op, pred: Distortion, i_in, i_out, options: DistortionOptio
                      f"({options.settle_time_constants * tau:.3g} s) would take more than "
                      f"max_periods={options.max_periods} periods; only {discard} periods were "
                      "discarded (see period_change).")
+    if (discard + M) * N * 2 > options.max_steps:
+        raise ParameterError(f"distortion needs at least {(discard + M) * N * 2} steps per "
+                             f"transient ({discard + M} periods of {N} samples, halved once) "
+                             f"but DistortionOptions max_steps={options.max_steps}; raise "
+                             "max_steps or lower max_periods or samples_per_period.")
     # The record's grid has the same shape at every frequency and settling, so
     # one transient program serves them all (dt, t_end and the grid are data).
     t_grid = (discard + np.arange(M * N) / N) * period
