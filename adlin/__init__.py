@@ -66,6 +66,11 @@ _LAZY = {
     "round_to_series": "._design.preferred_numbers",
 }
 
+__all__ = sorted(
+    {"AdlinError", "AnalysisError", "FloatingNodeError", "HighIndexError", "ModelError",
+     "ParameterError", "SteadyStateError"} | _SUBMODULES | set(_LAZY)
+)
+
 
 def __getattr__(name: str):
     """Import a public name's module on first use and keep the name here."""

@@ -74,6 +74,12 @@ def _declared_names() -> tuple[set[str], set[str]]:
 def test_every_public_name_resolves_and_is_listed():
     typed, lazy = _declared_names()
     assert typed == lazy  # the editor's view and the run-time table agree
+    errors = {"AdlinError", "AnalysisError", "FloatingNodeError", "HighIndexError",
+              "ModelError", "ParameterError", "SteadyStateError"}
+    assert set(adlin.__all__) == lazy | errors
+    star: dict = {}
+    exec("from adlin import *", star)  # noqa: S102  (the star form gives every public name)
+    assert set(star) - {"__builtins__"} == lazy | errors
     listed = set(dir(adlin))
     for name in sorted(lazy):
         assert name in listed, name
