@@ -277,8 +277,9 @@ def _measure(system, op, pred: Distortion, i_in, i_out, options: DistortionOptio
             notes.append(f"at amplitude {a:.4g} the measured harmonics still moved by "
                          f"{r.harmonic_error:.2g} (of the fundamental) when the steps were halved "
                          f"to T/{N * r.steps_per_sample}, more than rtol={options.rtol:g}: "
-                         "rounding or the step budget (max_steps) limits the measurement; "
-                         "loosen rtol or raise max_steps.")
+                         "rounding, the step budget (max_steps) or a failure of the transient "
+                         "with smaller steps limits the measurement; loosen rtol or raise "
+                         "max_steps.")
     notes += _comparison_notes(pred, m_hd2, m_hd3, np.maximum(floors_a, errors_a), changes_a,
                                options)
     settings = MeasurementSettings(
