@@ -43,7 +43,10 @@ NON_FINITE_RESULT = 100
 
 # Largest per-sample LAPACK cost, batch * n^3, that one device's batched call
 # may have when several CPU devices run at once (see `device_chunk_limit`).
-_PARALLEL_LAPACK_BUDGET = 200_000
+# 2e5 (59 samples of the 15-unknown demo per device) still hung on
+# 2026-12-02 with two devices, both stuck in the batched eigenvalue kernel;
+# 32 and 16 per device ran.
+_PARALLEL_LAPACK_BUDGET = 100_000
 # Runs of at least this many samples use the planned sparse solves by default
 # (`adlin._design.fast_path`): on the demo regulator they save 10-15 us of
 # ~50 us per sample and cost 5-10 s more compilation, which pays off only on
@@ -103,7 +106,10 @@ def device_chunk_limit(n_unknowns: int, n_devices: int) -> int | None:
     program's LAPACK calls from overlapping, but several CPU devices run their
     programs at the same time.  The split happens only above a cost of about
     batch * n^3 ~ 1e6 (measured: 15x15 solves hung at 300 per device, never at
-    256), so each device's batch is kept at 2e5 / n^3 samples.
+    256), so each device's batch was kept at 2e5 / n^3 samples; the whole demo
+    program (solves and eigenvalues) then hung at 59 per device, so the budget
+    is now 1e5 / n^3 (29 for the demo).  Found by experiment, not documented
+    by jaxlib: retest with a newer jaxlib.
     """
     if n_devices <= 1 or jax.devices()[0].platform != "cpu":
         return None
