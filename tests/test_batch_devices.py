@@ -15,7 +15,7 @@ import textwrap
 
 import pytest
 
-from adlin._design.batch import chunk_size, device_chunk_limit
+from adlin._design.batch import _PARALLEL_LAPACK_BUDGET, chunk_size, device_chunk_limit
 
 PRELUDE = textwrap.dedent(
     """
@@ -80,6 +80,19 @@ NO_HANG = PRELUDE + textwrap.dedent(
     """
 )
 
+DEMO_NO_HANG = PRELUDE + textwrap.dedent(
+    """
+    from adlin.scenarios import sensor_ldo_system
+
+    s = sensor_ldo_system()  # the demo regulator: its whole batched program per device
+    r_load = s.params["R_load"] * np.linspace(0.8, 1.2, 600)
+    for _ in range(3):
+        r = adlin.sweep(s, {"R_load": r_load})
+        assert bool(np.all(r.converged))
+    print(json.dumps({"chunk": r.chunk, "n_devices": r.n_devices}))
+    """
+)
+
 
 def _run(script: str, timeout: float) -> dict:
     env = {k: v for k, v in os.environ.items() if k != "XLA_FLAGS"}
@@ -110,7 +123,16 @@ def test_one_device_and_four_virtual_devices_give_identical_results():
 def test_several_devices_with_large_lapack_batches_do_not_deadlock():
     out = _run(NO_HANG.replace("DEVICES", "2"), timeout=400)
     assert out["n_devices"] == 2
-    assert out["chunk"] == 2 * (200_000 // 15**3)  # 59 per device, not the 4096 asked for
+    # 29 per device, not the 4096 asked for (59 per device hung once, 2026-12-02)
+    assert out["chunk"] == 2 * (_PARALLEL_LAPACK_BUDGET // 15**3) == 58
+
+
+@pytest.mark.slow
+def test_the_demo_regulator_on_two_devices_does_not_deadlock():
+    # At 59 samples per device this program hung (2026-12-02, native stacks of
+    # both devices inside the batched eigenvalue kernel); see device_chunk_limit.
+    out = _run(DEMO_NO_HANG.replace("DEVICES", "2"), timeout=400)
+    assert out["n_devices"] == 2 and out["chunk"] == 2 * (_PARALLEL_LAPACK_BUDGET // 15**3)
 
 
 def test_chunk_size_rules():
@@ -118,7 +140,7 @@ def test_chunk_size_rules():
     assert chunk_size(None, 100, 1, 15) == 128  # rounded up to a power of two
     assert chunk_size(100, 10_000, 4, 2) == 100  # a multiple of the device count
     assert chunk_size(101, 10_000, 4, 2) == 104
-    assert chunk_size(None, 10_000, 4, 15) == 4 * 59  # 2e5 / 15^3 per device
+    assert chunk_size(None, 10_000, 4, 15) == 4 * 29  # 1e5 / 15^3 per device
     assert device_chunk_limit(15, 1) is None
     assert device_chunk_limit(200, 8) == 1
     with pytest.raises(Exception, match="chunk"):
