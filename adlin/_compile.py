@@ -214,7 +214,7 @@ class CompiledSystem:
         return LinearModel(
             E=E, A=A, B=B, C=C, D=D,
             x0=x, u0=u, y0=y,
-            left=jnp.asarray(self._left), right=jnp.asarray(self._right),
+            left=jax.device_put(self._left), right=jax.device_put(self._right),
             n_dynamic=self.structure.n_dynamic,
             state_names=s.unknowns, input_names=s.inputs, output_names=s.outputs,
             dynamic_names=dyn,

@@ -292,7 +292,7 @@ def _merge(kind: str, names: tuple[str, ...], defaults, given: Mapping[str, Any]
     if not any(isinstance(v, jax.core.Tracer) for v in vals):
         # concrete values: one host array, no per-value device operations
         try:
-            return jnp.asarray(np.array([np.asarray(v, dtype=np.float64) for v in vals],
+            return jax.device_put(np.array([np.asarray(v, dtype=np.float64) for v in vals],
                                         dtype=np.float64).reshape(len(names)))
         except (TypeError, ValueError):
             bad = next(k for k in names if np.asarray(values[k]).size != 1)

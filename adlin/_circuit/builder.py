@@ -8,7 +8,7 @@ from collections.abc import Callable, Mapping
 from typing import Any
 
 import jax
-import jax.numpy as jnp
+import numpy as np
 
 from .._errors import ModelError
 from .._system import System
@@ -627,7 +627,7 @@ class Circuit:
             junctions=junction_table(elements, layout, self._values),
             name=self.name,
         )
-        x0 = jnp.zeros((layout.n,))
+        x0 = np.zeros((layout.n,))
         u0, p0 = system.input_vector(), system.param_vector()
         jax.eval_shape(system.f, x0, u0, p0)
         jax.eval_shape(system.q, x0, p0)

@@ -174,6 +174,6 @@ def bias_vector(op: Any, unknowns: tuple[str, ...]):
             "every unknown of the circuit by name."
         )
     try:  # concrete numbers: one transfer, no compilation
-        return jnp.asarray(np.asarray(values, dtype=np.float64))
+        return jax.device_put(np.asarray(values, dtype=np.float64))
     except (jax.errors.TracerArrayConversionError, jax.errors.ConcretizationTypeError):
         return jnp.stack([jnp.asarray(v, dtype=jnp.float64) for v in values])

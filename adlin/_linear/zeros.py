@@ -83,3 +83,17 @@ def siso_zeros(A, b, c, d):
         return jnp.zeros((0,), jnp.complex128)
     M, N = _pencil(A, b, c, d)
     return _pencil_zeros(M, N)
+
+
+def host_siso_zeros(A, b, c, d) -> np.ndarray:
+    """`siso_zeros` for concrete numpy arrays, on the host: nothing to compile.
+
+    A program holding a host callback is never written to the persistent
+    compilation cache, so the jitted form compiled on every `adlin demo`.
+    """
+    n = A.shape[0]
+    if n == 0:
+        return np.zeros((0,), complex)
+    M = np.block([[A, b[:, None]], [c[None, :], np.reshape(d, (1, 1))]])
+    N = np.diag(np.concatenate([np.ones(n), np.zeros(1)]))
+    return _host_zeros(M, N)[0]

@@ -102,8 +102,7 @@ def _merge_attempts(ops: list[OperatingPoint], final: OperatingPoint) -> Operati
         lambda o: (o.attempts, o.attempt_evaluations, o.attempt_steps, o.attempt_progress,
                    o.evaluations),
         final,
-        (jnp.asarray(attempts), jnp.asarray(evals), jnp.asarray(steps), jnp.asarray(progress),
-         jnp.asarray(total)),
+        tuple(jax.device_put(np.asarray(a)) for a in (attempts, evals, steps, progress, total)),
     )
 
 
