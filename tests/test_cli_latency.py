@@ -55,6 +55,13 @@ def test_the_demo_path_loads_none_of_the_heavy_packages():
     assert not any(loaded.values()), loaded
 
 
+def test_stimuli_and_linear_responses_load_no_transient_solver():
+    # stimuli and the exact linear response need no ODE solver; `simulate` does
+    loaded = _loaded_after("import adlin\nfrom adlin.stimuli import Step, Sine\n"
+                           "adlin.linear_response\n")
+    assert not loaded["diffrax"], loaded
+
+
 def test_a_lazy_name_imports_its_module_on_first_use():
     loaded = _loaded_after("import adlin\nadlin.simulate")
     assert loaded["diffrax"]
