@@ -3,7 +3,8 @@
 The reference solves d/dt q(v) + f(v, u(t)) = 0 for the periodic v(t) of a
 one-node circuit directly: v at K equally spaced instants of one period,
 d/dt by the exact derivative of the trigonometric interpolant (spectral
-collocation; Trefethen, Spectral Methods in MATLAB, SIAM 2000, ch. 3), the K
+collocation; Boyd, Chebyshev and Fourier Spectral Methods, 2nd ed., Dover
+2001, the Fourier differentiation matrix; chapter quoted from memory), the K
 equations solved by Newton in float64 (Kundert & Sangiovanni-Vincentelli,
 "Simulation of nonlinear circuits in the frequency domain", IEEE Trans. CAD
 5(4), 1986, harmonic balance).  It shares no code with adlin: device laws
