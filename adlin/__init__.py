@@ -47,7 +47,7 @@ _LAZY = {
     "Branch": "._continuation.branch",
     "TrackOptions": "._continuation.options",
     "track": "._continuation.track",
-    "Transient": "._transient", "simulate": "._transient",
+    "Transient": "._transient.result", "simulate": "._transient.simulate",
     "sensitivities": "._design.sensitivities",
     "Sensitivities": "._design.sensitivity_table",
     "distortion": "._trust.distortion",
@@ -121,7 +121,8 @@ if TYPE_CHECKING:  # the same names, eagerly, for type checkers and editors
     from ._steady.operating_point import OperatingPoint as OperatingPoint
     from ._steady.solve import steady_state as steady_state
     from ._system import Junction as Junction, System as System
-    from ._transient import Transient as Transient, simulate as simulate
+    from ._transient.result import Transient as Transient
+    from ._transient.simulate import simulate as simulate
     from ._trust.compare import Comparison as Comparison, compare as compare
     from ._trust.distortion import distortion as distortion
     from ._trust.distortion_options import DistortionOptions as DistortionOptions

@@ -62,6 +62,14 @@ def test_stimuli_and_linear_responses_load_no_transient_solver():
     assert not loaded["diffrax"], loaded
 
 
+def test_lazy_names_survive_their_modules_being_imported_first():
+    # a lazy package attribute named like a submodule is shadowed by that
+    # submodule once anything imports it (this broke adlin.simulate once)
+    probe = ("import adlin._transient.simulate, adlin._transient.result, adlin\n"
+             "assert callable(adlin.simulate) and isinstance(adlin.Transient, type)\n")
+    subprocess.run([sys.executable, "-c", probe], cwd=ROOT, check=True, timeout=120)
+
+
 def test_a_lazy_name_imports_its_module_on_first_use():
     loaded = _loaded_after("import adlin\nadlin.simulate")
     assert loaded["diffrax"]

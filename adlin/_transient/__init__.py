@@ -1,26 +1,8 @@
 """Nonlinear transients: stimuli, the index-1 vector field, `simulate`, `Transient`.
 
-`simulate` and `Transient` load on first use (module `__getattr__`): they bring
-in diffrax (about 0.4 s), which `adlin.stimuli` and the linear responses that
-import this package's `stimuli` module never need.
+The package imports nothing itself: `simulate` (in `simulate.py`) brings in
+diffrax (about 0.4 s), which `adlin.stimuli` and the linear responses, users
+of `stimuli.py`, never need.  `adlin.simulate` and `adlin.Transient` load
+their modules on first use.  (A package-level lazy `simulate` would be
+shadowed by the submodule of the same name once anything imports it.)
 """
-
-from typing import TYPE_CHECKING
-
-if TYPE_CHECKING:
-    from .result import Transient as Transient
-    from .simulate import simulate as simulate
-
-__all__ = ["Transient", "simulate"]
-
-
-def __getattr__(name: str):
-    if name == "simulate":
-        from .simulate import simulate
-
-        return simulate
-    if name == "Transient":
-        from .result import Transient
-
-        return Transient
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
