@@ -243,6 +243,18 @@ def _failure(system: System, tr: Transient, t_end: float, rtol: float,
             "stimulus amplitude, or pass throw=False to inspect the waveform up to that time.")
 
 
+def _positive_seconds(name: str, value) -> float:
+    """`value` as positive, finite, concrete seconds; else a ParameterError naming `name`."""
+    try:
+        v = float(value)
+    except (TypeError, jax.errors.ConcretizationTypeError):
+        raise ParameterError(f"{name} must be a concrete number of seconds (not traced), got "
+                             f"{value!r}.") from None
+    if not (math.isfinite(v) and v > 0):
+        raise ParameterError(f"{name} must be a positive, finite time in seconds, got {value!r}.")
+    return v
+
+
 def simulate(
     system: System,
     stimulus,
@@ -322,12 +334,7 @@ def simulate(
     if not isinstance(system, System):
         raise ModelError(f"simulate() needs an adlin.System, got {type(system).__name__}.")
     items = as_stimuli(system, stimulus, allow_empty=True)
-    try:
-        t_end_f = float(t_end)
-    except (TypeError, jax.errors.ConcretizationTypeError):
-        raise ParameterError("t_end must be a concrete number of seconds (not traced).") from None
-    if not (math.isfinite(t_end_f) and t_end_f > 0):
-        raise ParameterError(f"t_end must be a positive, finite time in seconds, got {t_end!r}.")
+    t_end_f = _positive_seconds("t_end", t_end)
     if not (isinstance(rtol, (int, float)) and 0 < rtol < 1):
         raise ParameterError(f"rtol must be a number in (0, 1), got {rtol!r}.")
     if not isinstance(max_steps, (int, np.integer)) or max_steps < 1:
@@ -338,12 +345,7 @@ def simulate(
                              f"{solver!r}.")
     ts = _grid(t, t_end_f, n_points)
     if dt is not None:
-        try:
-            dt_f = float(dt)
-        except (TypeError, jax.errors.ConcretizationTypeError):
-            raise ParameterError("dt must be a concrete step size in seconds or None.") from None
-        if not (math.isfinite(dt_f) and dt_f > 0):
-            raise ParameterError(f"dt must be a positive step size in seconds, got {dt!r}.")
+        dt_f = _positive_seconds("dt", dt)
         if math.ceil(t_end_f / dt_f) > max_steps:
             raise ParameterError(f"{math.ceil(t_end_f / dt_f)} steps of dt={dt_f:g} s do not fit "
                                  f"in max_steps={max_steps}; raise max_steps or use a larger dt.")
