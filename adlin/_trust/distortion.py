@@ -214,13 +214,12 @@ def _warm_start(kernels: HarmonicKernels, op, a: float, thd: float, weak_limit: 
     return jnp.asarray(x + a**2 * np.asarray(kernels.x20[:, 0]) + wave)
 
 
-def _state_swing(system: System, kernels: HarmonicKernels, a: float) -> np.ndarray:
-    """Predicted peak swing of each ODE state of the transient for amplitude a."""
+def _dynamic_basis(system: System) -> np.ndarray:
+    """P1: the transient's ODE state (dynamic coordinates) is P1 @ x."""
     from .._compile import compile
     from .._transient.simulate import reduced_field
 
-    P1 = np.asarray(reduced_field(compile(system)).P1)
-    return 2.0 * a * np.abs(P1 @ np.asarray(kernels.x1[:, 0]))
+    return np.asarray(reduced_field(compile(system)).P1)
 
 
 def _measure(system, op, pred: Distortion, i_in, i_out, options: DistortionOptions) -> Distortion:
@@ -251,11 +250,12 @@ def _measure(system, op, pred: Distortion, i_in, i_out, options: DistortionOptio
 
     records = []
     y_op = float(np.asarray(op.y)[i_out])
-    x_op = np.asarray(op.x)
+    P1 = _dynamic_basis(system)
+    z_op = P1 @ np.asarray(op.x)
+    z_swing = 2.0 * np.abs(P1 @ np.asarray(pred.kernels.x1[:, 0]))  # per unit amplitude
     for a, thd in zip(np.asarray(pred.amplitude), np.asarray(pred.predicted_thd), strict=True):
         x0 = _warm_start(pred.kernels, op, float(a), float(thd), options.weak_limit)
-        atol = stage_tolerance(_state_swing(system, pred.kernels, float(a)),
-                               _dynamic_part(system, x_op), options.rtol)
+        atol = stage_tolerance(float(a) * z_swing, z_op, options.rtol)
         tone = DistortionTone(pred.input, float(a), pred.f_hz)
 
         def run(m, tone=tone, x0=x0, atol=atol):
@@ -297,14 +297,6 @@ def _measure(system, op, pred: Distortion, i_in, i_out, options: DistortionOptio
         "noise_floor": jnp.asarray(floors_a), "period_change": jnp.asarray(changes_a),
         "settings": settings, "notes": tuple(notes),
     })
-
-
-def _dynamic_part(system: System, x) -> np.ndarray:
-    """The ODE state (dynamic coordinates) of a vector of unknowns."""
-    from .._compile import compile
-    from .._transient.simulate import reduced_field
-
-    return np.asarray(reduced_field(compile(system)).P1) @ np.asarray(x)
 
 
 def _comparison_notes(pred, m_hd2, m_hd3, floors, changes, options) -> list[str]:
