@@ -73,15 +73,17 @@ class CompiledSystem:
         self.poles = jax.jit(self._poles)
 
     # -- pure functions (jitted in __init__) -----------------------------
-    def _solve(self, u, p, x0, linear_solve=jnp.linalg.solve) -> OperatingPoint:
+    def _solve(self, u, p, x0, linear_solve=jnp.linalg.solve, head_steps: int = 0
+               ) -> OperatingPoint:
         """Steady state from guess x0: plain Newton, then one implicit-function step.
 
-        `linear_solve(J, rhs)` solves for Newton's steps (see `newton_solve`).
+        `linear_solve(J, rhs)` solves for Newton's steps, and the first
+        `head_steps` iterations run as a scan (see `newton_solve`).
         """
         s = self.system
         res = newton_solve(lambda x: s.f(x, u, p), jax.lax.stop_gradient(x0), self.junctions,
                            self.options, value_and_jacobian=self._jacobian(u, p),
-                           linear_solve=linear_solve)
+                           linear_solve=linear_solve, head_steps=head_steps)
         slot = jnp.arange(N_STRATEGIES) == NEWTON
         record = Candidate(
             x=res.x, reason=res.status, evaluations=res.evaluations, steps=res.iterations,

@@ -122,10 +122,50 @@ class NewtonResult(eqx.Module):
 
 
 def _tolerances(J, x, opts: NewtonOptions):
-    row_scale = jnp.abs(J) @ (jnp.abs(x) + opts.atol)
+    # a product and a row sum, not a matrix-vector product: under vmap XLA's
+    # batched dot of small matrices costs several times more on the CPU
+    row_scale = jnp.sum(jnp.abs(J) * (jnp.abs(x) + opts.atol)[None, :], axis=-1)
     f_tol = opts.rtol * row_scale + opts.ftol
     x_tol = opts.rtol * jnp.abs(x) + opts.atol
     return f_tol, x_tol, row_scale
+
+
+class _Test(eqx.Module):
+    """The Newton step at an iterate and the convergence test there."""
+
+    dx: jax.Array
+    row_scale: jax.Array
+    upd_ratio: jax.Array
+    res_ratio: jax.Array
+    finite: jax.Array
+    solved: jax.Array
+
+    @property
+    def converged(self):
+        return self.finite & self.solved & (self.upd_ratio <= 1.0) & (self.res_ratio <= 1.0)
+
+    @property
+    def status(self):
+        """SUCCESS, NOT_FINITE, SINGULAR_JACOBIAN, or -1 (go on)."""
+        return jnp.where(self.converged, SUCCESS, jnp.where(
+            ~self.finite, NOT_FINITE, jnp.where(~self.solved, SINGULAR_JACOBIAN, -1)))
+
+
+def _test(J, f, x, opts: NewtonOptions, linear_solve) -> _Test:
+    dx = linear_solve(J, -f)
+    f_tol, x_tol, row_scale = _tolerances(J, x, opts)
+    return _Test(dx=dx, row_scale=row_scale, upd_ratio=jnp.max(jnp.abs(dx) / x_tol),
+                 res_ratio=jnp.max(jnp.abs(f) / f_tol),
+                 finite=jnp.all(jnp.isfinite(f)) & jnp.all(jnp.isfinite(J)),
+                 solved=jnp.all(jnp.isfinite(dx)))
+
+
+def _step_scale(junctions: JunctionTable, x, dx, opts: NewtonOptions):
+    """The limited length of the step dx: junction limiting, then `max_step`."""
+    alpha = limit_scale(junctions, x, dx)
+    if opts.max_step is not None:
+        alpha = jnp.minimum(alpha, opts.max_step / jnp.maximum(jnp.max(jnp.abs(dx)), 1e-300))
+    return alpha
 
 
 def newton_solve(
@@ -136,6 +176,7 @@ def newton_solve(
     active=True,
     value_and_jacobian: Callable[[jax.Array], tuple[jax.Array, jax.Array]] | None = None,
     linear_solve: Callable[[jax.Array, jax.Array], jax.Array] = jnp.linalg.solve,
+    head_steps: int = 0,
 ) -> NewtonResult:
     """Solve fun(x) = 0 from x0. Pure JAX; never raises on non-convergence.
 
@@ -151,6 +192,10 @@ def newton_solve(
     given, replaces forward-mode AD of `fun` (a cheaper exact Jacobian).
     `linear_solve(J, rhs)` solves for the Newton step; it must return non-finite
     values where it cannot solve (the batch engine passes `adlin._sparse_lu`).
+
+    `head_steps` > 0 runs that many iterations first as a fixed-length scan
+    (`_head`): the same iterates as the loop as long as its full step passes
+    the line-search test, at about half the cost per iteration under vmap.
     """
     n = x0.shape[0]
 
@@ -175,21 +220,13 @@ def newton_solve(
     def body(state):
         x = state["x"]
         J, f = value_and_jac(x)
-        dx = linear_solve(J, -f)
-        f_tol, x_tol, row_scale = _tolerances(J, x, opts)
-        finite = jnp.all(jnp.isfinite(f)) & jnp.all(jnp.isfinite(J))
-        solved = jnp.all(jnp.isfinite(dx))
-        upd_ratio = jnp.max(jnp.abs(dx) / x_tol)
-        res_ratio = jnp.max(jnp.abs(f) / f_tol)
-        converged = finite & solved & (upd_ratio <= 1.0) & (res_ratio <= 1.0)
+        t = _test(J, f, x, opts, linear_solve)
+        converged = t.converged
 
         # globalized step
-        dx_safe = jnp.where(solved & finite, dx, 0.0)
-        alpha0 = limit_scale(junctions, x, dx_safe)
-        if opts.max_step is not None:
-            big = jnp.max(jnp.abs(dx_safe))
-            alpha0 = jnp.minimum(alpha0, opts.max_step / jnp.maximum(big, 1e-300))
-        w = 1.0 / jnp.where(row_scale > 0, row_scale, 1.0)
+        dx_safe = jnp.where(t.solved & t.finite, t.dx, 0.0)
+        alpha0 = _step_scale(junctions, x, dx_safe, opts)
+        w = 1.0 / jnp.where(t.row_scale > 0, t.row_scale, 1.0)
         m0 = merit(f, w)
 
         def ls_cond(ls):
@@ -204,36 +241,40 @@ def newton_solve(
         # no line search once converged: the caller takes the last step exactly
         ls = jax.lax.while_loop(
             ls_cond, ls_body,
-            {"alpha": alpha0, "ok": converged | ~finite | ~solved, "tries": jnp.asarray(0)},
+            {"alpha": alpha0, "ok": converged | ~t.finite | ~t.solved, "tries": jnp.asarray(0)},
         )
-        status = jnp.where(
-            converged,
-            SUCCESS,
-            jnp.where(~finite, NOT_FINITE, jnp.where(~solved, SINGULAR_JACOBIAN, -1)),
-        )
+        status = t.status
         return {
             "x": jnp.where(status < 0, x + ls["alpha"] * dx_safe, x),
             "f": f,
             "J": J,
-            "dx": dx,
+            "dx": t.dx,
             "k": state["k"] + 1,
             "status": status,
             "evals": state["evals"] + 1 + n + ls["tries"],
-            "upd": upd_ratio,
-            "res": res_ratio,
+            "upd": t.upd_ratio,
+            "res": t.res_ratio,
         }
 
-    init = {
-        "x": x0,
-        "f": jnp.zeros_like(x0),
-        "J": jnp.zeros((n, n), x0.dtype),
-        "dx": jnp.zeros_like(x0),
-        "k": jnp.asarray(0),
-        "status": jnp.where(active, -1, MAX_ITERATIONS),
-        "evals": jnp.asarray(0),
-        "upd": jnp.asarray(jnp.inf, dtype=x0.dtype),
-        "res": jnp.asarray(jnp.inf, dtype=x0.dtype),
-    }
+    if head_steps > 0:
+        # the scan's lanes that converged enter the loop finished, so the loop
+        # runs no iteration at all when every lane of a batch converged there
+        init = _head(value_and_jac, x0, head_steps, junctions, opts, merit, linear_solve,
+                     active)
+        init["status"] = jnp.where(init["status"] == SUCCESS, SUCCESS,
+                                   jnp.where(active, -1, MAX_ITERATIONS))
+    else:
+        init = {
+            "x": x0,
+            "f": jnp.zeros_like(x0),
+            "J": jnp.zeros((n, n), x0.dtype),
+            "dx": jnp.zeros_like(x0),
+            "k": jnp.asarray(0),
+            "status": jnp.where(active, -1, MAX_ITERATIONS),
+            "evals": jnp.asarray(0),
+            "upd": jnp.asarray(jnp.inf, dtype=x0.dtype),
+            "res": jnp.asarray(jnp.inf, dtype=x0.dtype),
+        }
     out = jax.lax.while_loop(cond, body, init)
     status = jnp.where(out["status"] < 0, MAX_ITERATIONS, out["status"])
     return NewtonResult(
@@ -247,3 +288,54 @@ def newton_solve(
         residual_ratio=out["res"],
         evaluations=out["evals"],
     )
+
+
+def _head(value_and_jac, x0, steps: int, junctions: JunctionTable, opts: NewtonOptions, merit,
+          linear_solve, active) -> dict:
+    """`steps` Newton iterations as a scan, then the test at the last iterate.
+
+    Returns the loop's state there: x with f, df/dx, the Newton step and the
+    ratios at x, the iterations and evaluations spent, and status SUCCESS
+    where x passed the convergence test (else -1; `newton_solve` sets it).
+
+    Each iteration is the loop's first line-search trial: the full (limited)
+    step, kept if it passes the same Armijo test, with the value and Jacobian
+    at the trial point evaluated together (the next iteration needs both).
+    A lane whose step fails, or that has converged, stays where it is, so the
+    iterates are the loop's own and the loop takes over where the scan left
+    off.  Why a scan: under vmap the while loop pays per iteration for its
+    nested line-search loop and batched exit tests, and the same steps written
+    out unrolled are far slower still (XLA copies the solve into every
+    consumer of its result; measured on the demo regulator, DEVELOPERS.md).
+    """
+    n = x0.shape[0]
+    J0, f0 = value_and_jac(x0)
+
+    def body(carry, _):
+        x, f, J, done, k, trials = carry
+        t = _test(J, f, x, opts, linear_solve)
+        done = done | (t.status >= 0)
+        dx = jnp.where(done, 0.0, t.dx)
+        alpha = _step_scale(junctions, x, dx, opts)
+        w = 1.0 / jnp.where(t.row_scale > 0, t.row_scale, 1.0)
+        x_try = x + alpha * dx
+        J_try, f_try = value_and_jac(x_try)
+        ok = ~done & (merit(f_try, w) <= (1.0 - 2e-4 * alpha) * merit(f, w))
+        keep = lambda new, old: jnp.where(ok, new, old)  # noqa: E731
+        return (keep(x_try, x), keep(f_try, f), keep(J_try, J), done | ~ok,
+                k + ok.astype(k.dtype), trials + (~done).astype(k.dtype)), None
+
+    zero = jnp.asarray(0)
+    init = (x0, f0, J0, ~jnp.asarray(active, dtype=bool), zero, zero)
+    (x, f, J, _, k, trials), _ = jax.lax.scan(body, init, None, length=steps)
+    t = _test(J, f, x, opts, linear_solve)
+    converged = t.converged
+    return {
+        "x": x, "f": f, "J": J, "dx": t.dx,
+        # the loop counts the iteration that declares convergence
+        "k": k + converged.astype(k.dtype),
+        "status": jnp.where(converged, SUCCESS, -1),
+        # the start and every trial: one value and one Jacobian (n) each
+        "evals": jnp.where(active, (1 + n) * (1 + trials), 0),
+        "upd": t.upd_ratio, "res": t.res_ratio,
+    }
