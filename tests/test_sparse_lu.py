@@ -50,6 +50,38 @@ def test_planned_solve_equals_lapack_on_matrices_of_the_pattern(seed, n, spread)
 
 
 @settings(max_examples=12, deadline=None)
+@given(seed=st.integers(0, 2**31 - 1), n=st.integers(2, 10), spread=st.floats(0.0, 0.3))
+def test_structural_check_solves_as_lapack_and_refuses_entries_outside_the_pattern(
+        seed, n, spread):
+    """check="structure" (Newton's steps): the same answers as LAPACK on matrices
+    of the pattern; a nonzero outside the pattern makes x non-finite."""
+    rng = np.random.default_rng(seed)
+    M0 = _pattern_matrix(rng, n, 0.3)
+    plan = SparseLU.from_matrix(M0)
+    Ms = M0 * (1.0 + spread * rng.uniform(-1, 1, size=(8, n, n)))
+    b = rng.normal(size=(8, n))
+    solve = jax.jit(jax.vmap(functools.partial(plan.solve, check="structure")))
+    x = np.asarray(solve(jnp.asarray(Ms), jnp.asarray(b)))
+    ref = np.linalg.solve(Ms, b[..., None])[..., 0]
+    well = np.linalg.cond(Ms) < 1e6
+    assert np.all(np.isfinite(x[well]))
+    np.testing.assert_allclose(x[well], ref[well], rtol=1e-8, atol=1e-10 * np.abs(ref).max())
+    outside = [(i, j) for i in range(n) for j in range(n) if M0[i, j] == 0.0
+               and (plan.order.index(i), j) not in plan.pattern]
+    if outside:
+        i, j = outside[rng.integers(len(outside))]
+        Ms[:, i, j] = 1e-3
+        x = np.asarray(solve(jnp.asarray(Ms), jnp.asarray(b)))
+        assert not np.any(np.all(np.isfinite(x), axis=1))
+
+
+def test_an_unknown_check_is_refused():
+    plan = SparseLU.from_matrix(np.eye(3))
+    with pytest.raises(ValueError, match="check"):
+        plan.solve(jnp.eye(3), jnp.ones(3), check="none")
+
+
+@settings(max_examples=12, deadline=None)
 @given(seed=st.integers(0, 2**31 - 1))
 def test_badly_scaled_rows_and_zero_right_hand_sides_are_accepted(seed):
     """Circuit rows mix siemens and volts, and Newton's steps near a solution mix

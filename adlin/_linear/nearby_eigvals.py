@@ -242,5 +242,15 @@ def eigvals_near(A, plan: NearbyPlan):
     tr2 = (jnp.abs(jnp.sum(roots ** 2) - jnp.sum(H * H.T))
            <= _TRACE_RTOL * jnp.sum(jnp.abs(roots) ** 2))
     ok = small & converged & paired & tr1 & tr2 & jnp.all(jnp.isfinite(roots))
-    order = jnp.lexsort((-roots.imag, jnp.abs(roots)))
-    return jnp.where(ok, roots[order], jnp.nan), ok
+    return jnp.where(ok, _sorted(roots), jnp.nan), ok
+
+
+def _sorted(z):
+    """z by modulus, each conjugate pair with its upper member first (LAPACK's
+    order, kept by `sorted_eigvals`' stable sort); one sort, not a lexsort of
+    two keys (each sort costs ~0.3 us per sample under vmap, profiled)."""
+    s = z[jnp.argsort(jnp.abs(z), stable=True)]
+    lower_first = (s[:-1].imag < 0) & (s[1:] == jnp.conj(s[:-1]))
+    no = jnp.zeros((1,), bool)
+    here, after = jnp.concatenate([lower_first, no]), jnp.concatenate([no, lower_first])
+    return jnp.where(here, jnp.roll(s, -1), jnp.where(after, jnp.roll(s, 1), s))
