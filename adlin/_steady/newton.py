@@ -122,9 +122,7 @@ class NewtonResult(eqx.Module):
 
 
 def _tolerances(J, x, opts: NewtonOptions):
-    # a product and a row sum, not a matrix-vector product: under vmap XLA's
-    # batched dot of small matrices costs several times more on the CPU
-    row_scale = jnp.sum(jnp.abs(J) * (jnp.abs(x) + opts.atol)[None, :], axis=-1)
+    row_scale = jnp.abs(J) @ (jnp.abs(x) + opts.atol)
     f_tol = opts.rtol * row_scale + opts.ftol
     x_tol = opts.rtol * jnp.abs(x) + opts.atol
     return f_tol, x_tol, row_scale
@@ -298,29 +296,34 @@ def _head(value_and_jac, x0, steps: int, junctions: JunctionTable, opts: NewtonO
     ratios at x, the iterations and evaluations spent, and status SUCCESS
     where x passed the convergence test (else -1; `newton_solve` sets it).
 
-    Each iteration is the loop's first line-search trial: the full (limited)
-    step, kept if it passes the same Armijo test, with the value and Jacobian
-    at the trial point evaluated together (the next iteration needs both).
-    A lane whose step fails, or that has converged, stays where it is, so the
-    iterates are the loop's own and the loop takes over where the scan left
-    off.  Why a scan: under vmap the while loop pays per iteration for its
-    nested line-search loop and batched exit tests, and the same steps written
-    out unrolled are far slower still (XLA copies the solve into every
-    consumer of its result; measured on the demo regulator, DEVELOPERS.md).
+    Each iteration is a full (limited) Newton step, kept if it passes the
+    loop's Armijo test, with the row weights of the merit taken once at x0
+    (any fixed positive weights make the Newton step a descent direction;
+    Dennis & Schnabel 1996, sec. 6.3) and the value and Jacobian at the trial
+    point evaluated together (the next iteration needs both).  A lane whose
+    step fails stays where it is and the loop takes over from there with its
+    backtracking; there is no convergence test inside (a converged lane's
+    next step is within tolerance), only after the scan.  Why a scan: under
+    vmap the while loop pays per iteration for its nested line-search loop,
+    tolerances and batched exit tests, and the same steps written out
+    unrolled are far slower still (XLA copies the solve into every consumer
+    of its result; measured on the demo regulator, DEVELOPERS.md).
     """
     n = x0.shape[0]
     J0, f0 = value_and_jac(x0)
+    _, _, row_scale = _tolerances(J0, x0, opts)
+    w = 1.0 / jnp.where(row_scale > 0, row_scale, 1.0)
 
     def body(carry, _):
         x, f, J, done, k, trials = carry
-        t = _test(J, f, x, opts, linear_solve)
-        done = done | (t.status >= 0)
-        dx = jnp.where(done, 0.0, t.dx)
+        dx = linear_solve(J, -f)
+        done = done | ~jnp.all(jnp.isfinite(dx))
+        dx = jnp.where(done, 0.0, dx)
         alpha = _step_scale(junctions, x, dx, opts)
-        w = 1.0 / jnp.where(t.row_scale > 0, t.row_scale, 1.0)
         x_try = x + alpha * dx
         J_try, f_try = value_and_jac(x_try)
-        ok = ~done & (merit(f_try, w) <= (1.0 - 2e-4 * alpha) * merit(f, w))
+        ok = (~done & jnp.all(jnp.isfinite(J_try))
+              & (merit(f_try, w) <= (1.0 - 2e-4 * alpha) * merit(f, w)))
         keep = lambda new, old: jnp.where(ok, new, old)  # noqa: E731
         return (keep(x_try, x), keep(f_try, f), keep(J_try, J), done | ~ok,
                 k + ok.astype(k.dtype), trials + (~done).astype(k.dtype)), None
