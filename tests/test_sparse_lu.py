@@ -15,7 +15,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
 import adlin
@@ -83,6 +83,7 @@ def test_an_unknown_check_is_refused():
 
 @settings(max_examples=12, deadline=None)
 @given(seed=st.integers(0, 2**31 - 1))
+@example(seed=173554272)  # residual 1.3e-10 of the row sizes (LAPACK's: 9e-11)
 def test_badly_scaled_rows_and_zero_right_hand_sides_are_accepted(seed):
     """Circuit rows mix siemens and volts, and Newton's steps near a solution mix
     sizes and exact zeros: a well-conditioned (after row scaling) system must not
