@@ -70,7 +70,8 @@ class FastPlans:
         if r == 0:
             return op, lin, jnp.zeros((0,), jnp.complex128)
         Ar = reduce_descriptor(lin.E, lin.A, lin.B, lin.C, lin.D, lin.left, lin.right, r,
-                               solve_a22=_solver(self.a22), solve_e11=_solver(self.e11))[0]
+                               solve_a22=_solver(self.a22), solve_e11=_solver(self.e11),
+                               state_only=True)[0]
         if self.poles is None:
             return op, lin, sorted_eigvals(Ar)
         return op, lin, nearby_eigvals.eigvals_near(Ar, self.poles)[0]
