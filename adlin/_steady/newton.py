@@ -192,8 +192,8 @@ def newton_solve(
     values where it cannot solve (the batch engine passes `adlin._sparse_lu`).
 
     `head_steps` > 0 runs that many iterations first as a fixed-length scan
-    (`_head`): the same iterates as the loop as long as its full step passes
-    the line-search test, at about half the cost per iteration under vmap.
+    (`_head`): full Newton steps while they pass an Armijo test, cheaper per
+    iteration than the loop under vmap; the loop takes over where they stop.
     """
     n = x0.shape[0]
 
@@ -259,8 +259,9 @@ def newton_solve(
         # runs no iteration at all when every lane of a batch converged there
         init = _head(value_and_jac, x0, head_steps, junctions, opts, merit, linear_solve,
                      active)
-        init["status"] = jnp.where(init["status"] == SUCCESS, SUCCESS,
-                                   jnp.where(active, -1, MAX_ITERATIONS))
+        done = active & (init["status"] == SUCCESS)
+        init["status"] = jnp.where(done, SUCCESS, jnp.where(active, -1, MAX_ITERATIONS))
+        init["k"] = jnp.where(active, init["k"], 0)
     else:
         init = {
             "x": x0,
