@@ -117,8 +117,9 @@ class SparseLU:
         rows = [{j: Mc[self.order[i], j] for j in range(n) if (i, j) in self.pattern}
                 for i in range(n)]
         rhs = [bc[self.order[i]] for i in range(n)]
+        structural = check == "structure"
         tame = [Mc[self.order[i], j] == 0 for i in range(n) for j in range(n)
-                if (i, j) not in self.pattern]
+                if structural and (i, j) not in self.pattern]
         for k in range(n):
             inv = 1.0 / rows[k][k]
             right = [(j, v) for j, v in rows[k].items() if j > k]
@@ -126,7 +127,8 @@ class SparseLU:
                 if k not in rows[i]:
                     continue
                 m = rows[i].pop(k) * inv
-                tame.append(jnp.abs(m) <= MAX_MULTIPLIER)
+                if structural:
+                    tame.append(jnp.abs(m) <= MAX_MULTIPLIER)
                 for j, v in right:
                     rows[i][j] = rows[i][j] - m * v if j in rows[i] else -m * v
                 rhs[i] = rhs[i] - m * rhs[k]
@@ -137,7 +139,7 @@ class SparseLU:
                 if j > i:
                     s = s - v * x[j]
             x[i] = s / rows[i][i]
-        if check == "structure":
+        if structural:
             # NaN in the first entry only: callers test all(isfinite(x)), and a
             # select on every entry would recompute the test for each of them
             ok = functools.reduce(jnp.logical_and, tame, jnp.asarray(True))

@@ -28,9 +28,9 @@ from .._linear.reduce import reduce_descriptor
 from .._sparse_lu import SparseLU
 
 # Newton iterations of a sample run as a scan before the while loop: from the
-# nominal point, samples within tolerance spreads converge in 3-4 iterations
-# (the demo regulator: 3 for 85 % of samples with +-20-30 % parts), and a scan
-# iteration costs about half a loop iteration under vmap.
+# nominal point, samples within tolerance spreads converge in 2-3 steps (the
+# demo regulator with +-20-30 % parts: 3 steps for 85 % of samples), and a
+# scan iteration is cheaper than a loop iteration under vmap (DEVELOPERS.md).
 HEAD_STEPS = 3
 
 
