@@ -22,7 +22,13 @@ from hypothesis import strategies as st
 
 import adlin
 from adlin._linear.model import sorted_eigvals
-from adlin._linear.nearby_eigvals import NearbyPlan, distinct, eigvals_near
+from adlin._linear.nearby_eigvals import (
+    NearbyPlan,
+    _sorted,
+    distinct,
+    eigvals_near,
+    sorting_network,
+)
 
 
 def graded_matrix(seed: int = 0, spread: float = 0.0, shape_seed: int = 0) -> np.ndarray:
@@ -143,14 +149,16 @@ def test_distinct_starts():
     assert not distinct(np.array([-1.0, np.nan]))
 
 
+@pytest.mark.parametrize("nominal_zeta", [1.5, 0.5])
 @pytest.mark.parametrize("zeta", [0.3, 0.9, 0.99, 1.02, 1.5, 3.0])
-def test_batched_series_rlc_poles_across_critical_damping(zeta):
-    """The nominal circuit is overdamped (two real poles); the samples cross into
-    complex pairs.  The fast path must give the closed-form poles: found from
-    the nominal ones, or, where that search gives up, by the general path."""
+def test_batched_series_rlc_poles_across_critical_damping(zeta, nominal_zeta):
+    """The nominal circuit is overdamped (two real poles) or underdamped (a
+    pair); the samples cross to the other kind.  The search keeps each root's
+    kind, so a crossing sample must be handed back: the fast path must give the
+    closed-form poles, found from the nominal ones or by the general path."""
     L, C = 1e-3, 1e-6
     r_crit = 2 * np.sqrt(L / C)
-    system = series_rlc(1.5 * r_crit, L, C)
+    system = series_rlc(nominal_zeta * r_crit, L, C)
     R = zeta * r_crit * np.array([1.0, 0.999, 1.001])
     res = adlin.sweep(system, {"R": R}, product=False, fast_solves=True)
     a = R / (2 * L)
@@ -159,3 +167,44 @@ def test_batched_series_rlc_poles_across_critical_damping(zeta):
     got = np.asarray(res.poles)
     for g, e in zip(got, expected, strict=True):
         np.testing.assert_allclose(np.sort_complex(g), np.sort_complex(e), rtol=1e-9)
+
+
+@pytest.mark.parametrize("n", range(17))
+def test_sorting_network_sorts_every_input(n):
+    """By the 0-1 principle a comparator network sorts every input if it sorts
+    every sequence of zeros and ones (Knuth, The Art of Computer Programming,
+    vol. 3, 2nd ed., sec. 5.3.4, Theorem Z): all 2^n of them, checked at
+    once.  For n = 2^k, Batcher's network has (k^2 - k + 4) 2^(k-2) - 1
+    comparators (same section, from memory): 5, 19 and 63 for 4, 8 and 16."""
+    net = sorting_network(n)
+    v = (np.arange(1 << n)[:, None] >> np.arange(n)[None, :]) & 1
+    for i, j in net:
+        assert i < j < n
+        lo, hi = np.minimum(v[:, i], v[:, j]), np.maximum(v[:, i], v[:, j])
+        v[:, i], v[:, j] = lo, hi
+    assert np.all(np.diff(v, axis=1) >= 0)
+    if n in (4, 8, 16):
+        k = n.bit_length() - 1
+        assert len(net) == (k * k - k + 4) * 2 ** (k - 2) - 1
+
+
+@settings(max_examples=30, deadline=None)
+@given(seed=st.integers(0, 2**31 - 1), n_real=st.integers(0, 9), n_pairs=st.integers(0, 7))
+def test_sorted_roots_are_in_the_order_of_sorted_eigvals(seed, n_real, n_pairs):
+    """The network's order equals `sorted_eigvals`' on LAPACK's eigenvalues of a
+    real matrix with those eigenvalues (block diagonal in a random basis)."""
+    n = n_real + 2 * n_pairs
+    if n == 0:
+        return
+    rng = np.random.default_rng(seed)
+    blocks = np.zeros((n, n))
+    blocks[range(n_real), range(n_real)] = -(10.0 ** rng.uniform(0, 6, n_real))
+    for k in range(n_pairs):
+        a, b = -(10.0 ** rng.uniform(0, 6)), 10.0 ** rng.uniform(0, 6)
+        i = n_real + 2 * k
+        blocks[i:i + 2, i:i + 2] = [[a, b], [-b, a]]
+    T = np.eye(n) + 0.2 * rng.standard_normal((n, n))
+    lam = np.asarray(jnp.linalg.eigvals(jnp.asarray(T @ blocks @ np.linalg.inv(T))))
+    expected = np.asarray(sorted_eigvals(jnp.asarray(T @ blocks @ np.linalg.inv(T))))
+    got = np.asarray(jax.jit(_sorted)(jnp.asarray(rng.permutation(lam))))
+    np.testing.assert_array_equal(got, expected)
