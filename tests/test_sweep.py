@@ -143,3 +143,30 @@ def test_zipped_pole_law_over_random_values(points):
     C = 1e-6 * 10.0 ** np.array([b for _, b in points])
     r = adlin.sweep(low_pass(), {"R": R, "C": C}, product=False)
     np.testing.assert_allclose(np.asarray(r.poles)[:, 0].real, -1 / ((R + R_SRC) * C), rtol=1e-11)
+
+
+def test_the_nominal_point_is_remembered_per_nominal_values_only():
+    """Runs about the same nominal values reuse its operating point and plans;
+    other values get their own, equal to a fresh `adlin.steady_state` (the
+    DC output equals v_s, Alexander & Sadiku, 5th ed., 7.2), and the memo
+    stays bounded."""
+    from adlin._compile import compile
+    from adlin._design import nominal_point as memo
+
+    system = low_pass()
+    compiled = compile(system)
+    compiled.__dict__.pop("_nominal_memo", None)
+    first, plans = memo.nominal_point(compiled, {"v_s": 2.0}, None, plans=True)
+    again, plans_again = memo.nominal_point(compiled, {"v_s": 2.0}, None, plans=True)
+    assert again is first and plans_again is plans
+    other, _ = memo.nominal_point(compiled, {"v_s": 2.0 + 1e-12}, None, plans=False)
+    assert other is not first
+    np.testing.assert_allclose(np.asarray(other.x), [2.0 + 1e-12] * 2, rtol=1e-14)
+    np.testing.assert_array_equal(np.asarray(other.x),
+                                  np.asarray(adlin.steady_state(system, {"v_s": 2.0 + 1e-12}).x))
+    for k in range(memo.MEMO_SIZE + 3):
+        memo.nominal_point(compiled, None, {"R": 1e3 + k}, plans=False)
+    assert len(compiled.__dict__["_nominal_memo"]) == memo.MEMO_SIZE
+    fresh, _ = memo.nominal_point(compiled, {"v_s": 2.0}, None, plans=False)
+    assert fresh is not first  # evicted, solved again
+    np.testing.assert_array_equal(np.asarray(fresh.x), np.asarray(first.x))

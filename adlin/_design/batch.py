@@ -31,7 +31,8 @@ from jax.sharding import AxisType, NamedSharding, PartitionSpec
 from .._errors import AnalysisError, ModelError, ParameterError, did_you_mean
 from .._steady.strategies.reasons import REASON_MESSAGES
 from .._system import System
-from .fast_path import FastPlans, plan_at
+from .fast_path import FastPlans
+from .nominal_point import nominal_point
 from .quantities import AbstractQuantity, resolve_quantities
 from .sensitivities import COALESCE_RTOL, _pole_refs
 from .targets import as_targets
@@ -244,13 +245,12 @@ def run_batch(
     devices,
     progress: Callable[[int, int], Any] | None,
     what: str,
-    nominal_op=None,
     fast_solves: bool | None = None,
 ) -> BatchOutput:
     """Evaluate every row of `values` (columns: `names`) in chunks.
 
     **Arguments:** as `adlin.sweep` (`what` names the calling function in
-    messages); `nominal_op`: the nominal operating point if the caller has it.
+    messages).
 
     **Returns:** a `BatchOutput`.
 
@@ -258,7 +258,6 @@ def run_batch(
     `SteadyStateError` (no nominal operating point), `ModelError`.
     """
     from .._compile import compile
-    from .._steady.solve import steady_state
 
     if not isinstance(system, System):
         raise ModelError(f"{what}() needs an adlin.System, got {type(system).__name__}.")
@@ -271,8 +270,14 @@ def run_batch(
         t.validate(system)
     devs = resolve_devices(devices)
 
-    op = nominal_op if nominal_op is not None else steady_state(system, inputs, params)
     compiled = compile(system)
+    if fast_solves is None:
+        fast_solves = values.shape[0] >= FAST_SOLVES_FROM
+    elif not isinstance(fast_solves, bool):
+        raise ParameterError(f"fast_solves must be True, False or None (automatic), got "
+                             f"{fast_solves!r}.")
+    # the nominal point (samples start there) and plans, remembered across runs
+    op, plans = nominal_point(compiled, inputs, params, plans=fast_solves)
     refs = np.zeros(len(quantities), dtype=complex)
     if any(q.tracks_pole for q in quantities):  # a linearization costs ~4 ms
         refs, _, _ = _pole_refs(quantities, compiled.linearize(op.x, op.u, op.p),
@@ -283,12 +288,6 @@ def run_batch(
     n = values.shape[0]
     size = chunk_size(chunk, n, len(devs), system.n)
     where = _placement(devs)
-    if fast_solves is None:
-        fast_solves = n >= FAST_SOLVES_FROM
-    elif not isinstance(fast_solves, bool):
-        raise ParameterError(f"fast_solves must be True, False or None (automatic), got "
-                             f"{fast_solves!r}.")
-    plans = plan_at(compiled, x0, u0, p0) if fast_solves else None
     program = _program(compiled, pidx, uidx, quantities, targets, plans)
     refs = jnp.asarray(refs)
 
