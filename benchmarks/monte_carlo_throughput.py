@@ -5,10 +5,11 @@ tolerances on several parts; adlin draws the samples, and the scipy loop of
 `scipy_loop.py` (root finding from the nominal operating point,
 finite-difference Jacobians, generalized eigenvalues) runs on the very same
 parameter vectors in the same process.  Printed: samples per second for both,
-adlin's first call (compilation included) and warm calls (min/median/max over
-repeats) separately, their ratio against the 300x target, the load average
-before and after (the machine may be shared, and the loop of many small
-dispatches suffers more from a busy machine than one batched program), and the
+adlin's first call (compilation included) and warm calls (min/median/max),
+their ratio against the 300x target per round (`--repeat` rounds, each one
+warm adlin call and then the loop on its share of the samples: the machine is
+shared and its speed drifts, so only measurements taken back to back are
+compared; `scipy_loop.in_turns`), the load average before and after, and the
 agreement of the poles.
 
 The warm calls reuse the nominal operating point and solver plans that the
@@ -16,7 +17,7 @@ first call solved (`adlin._design.nominal_point`), as the loop reuses the
 nominal point it is given; the script measures that cost and also prints the
 ratio had every warm call paid it (`nominal_cost.py`).
 
-    python benchmarks/monte_carlo_throughput.py [-n 10000] [--baseline-samples 1000] [--repeat 3]
+    python benchmarks/monte_carlo_throughput.py [-n 10000] [--baseline-samples 1000] [--repeat 5]
 
 With --baseline-samples N < n the loop runs on the first N samples and its
 time per sample is scaled to n (the script says so); --baseline-samples 0
@@ -27,13 +28,12 @@ from __future__ import annotations
 
 import argparse
 import os
-import statistics
 import time
 
 import jax
 import numpy as np
-from nominal_cost import describe, nominal_seconds
-from scipy_loop import pole_agreement, run_baseline
+from nominal_cost import describe, nominal_seconds, report
+from scipy_loop import in_turns, pole_agreement
 
 import adlin
 from adlin.scenarios import sensor_ldo
@@ -57,7 +57,8 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("-n", "--samples", type=int, default=10_000)
     ap.add_argument("--seed", type=int, default=0)
-    ap.add_argument("--repeat", type=int, default=3, help="warm adlin calls to time")
+    ap.add_argument("--repeat", type=int, default=5,
+                    help="rounds: warm adlin calls, each followed by a share of the loop")
     ap.add_argument("--baseline-samples", type=int, default=1000,
                     help="run the scipy loop on this many samples and scale (0: all)")
     args = ap.parse_args()
@@ -74,37 +75,20 @@ def main() -> None:
     t0 = time.perf_counter()
     r = run()
     t_first = time.perf_counter() - t0
-    warm = []
-    for _ in range(args.repeat):
-        t0 = time.perf_counter()
-        r = run()
-        warm.append(time.perf_counter() - t0)
-    t_warm = statistics.median(warm)
-    ok = np.asarray(r.converged)
-    print(f"adlin monte_carlo : first call {t_first:7.2f} s (nominal bias, sampling, compilation), "
-          f"warm min/median/max {min(warm):.3f}/{t_warm:.3f}/{max(warm):.3f} s "
-          f"= {n / t_warm:,.0f} samples/s median ({t_warm / n * 1e6:.1f} us per sample), "
-          f"chunk {r.chunk}, {ok.sum()}/{n} converged")
-
-    # the loop on the same parameter vectors adlin sampled
+    # the loop on the same parameter vectors adlin sampled (same seed every call)
     P = np.tile(np.asarray(system.param_vector()), (n, 1))
     for j, name in enumerate(r.varied_names):
         P[:, system.param_names.index(name)] = np.asarray(r.varied)[:, j]
     nb = n if args.baseline_samples <= 0 else min(args.baseline_samples, n)
-    ref, ref_ok, t_base = run_baseline(system, P[:nb])
-    t_base_full = t_base * n / nb
-    note = f" (measured on {nb} samples, scaled x{n / nb:.1f})" if nb != n else ""
-    print(f"scipy loop        : {t_base_full:7.2f} s{note} = {nb / t_base:,.0f} samples/s "
-          f"({t_base / nb * 1e3:.2f} ms per sample), {ref_ok.sum()}/{nb} converged")
+    warm, loop, ref, ref_ok, r = in_turns(run, system, P[:nb], args.repeat)
+    ok = np.asarray(r.converged)
+    report(n, nb, t_first, warm, loop, f"chunk {r.chunk}, {ok.sum()}/{n} converged",
+           f"{ref_ok.sum()}/{nb} converged")
     err, slow_err, compared = pole_agreement(np.asarray(r.poles), ok, ref, ref_ok)
     print(f"poles, adlin vs loop, {compared} samples: max relative difference {err:.1e} overall, "
           f"{slow_err:.1e} below 1e8 rad/s (the loop's finite differences and the QZ solve of "
           "the badly scaled pencil limit its accuracy)")
-    print(f"speed-up, warm adlin vs scipy loop : {t_base_full / t_warm:8.1f}x median "
-          f"({t_base_full / max(warm):.1f}x to {t_base_full / min(warm):.1f}x over the repeats)"
-          "   (target >= 300x)")
-    print(describe(nominal_seconds(system), t_warm, t_base_full, n))
-    print(f"speed-up, adlin first call         : {t_base_full / t_first:8.1f}x")
+    print(describe(nominal_seconds(system), warm, loop, n))
     print(f"load average after: {_load()}")
 
 

@@ -57,6 +57,31 @@ def run_baseline(system, P, inputs=None):
     return out, np.asarray(ok), time.perf_counter() - t0
 
 
+def in_turns(adlin_call, system, P, rounds: int, inputs=None):
+    """adlin's warm call and a share of the loop's samples (rows of P), timed in
+    turns, `rounds` times: the machine is shared and its speed drifts, so each
+    ratio compares two measurements taken back to back.  One untimed call of
+    each comes first (both are compiled by then; this settles caches and
+    allocations).
+
+    **Returns:** (adlin seconds per call, loop seconds per sample, one value per
+    round; the loop's poles and converged flags for all rows of P; adlin's
+    last result).
+    """
+    adlin_call()  # one untimed warm-up call of each side
+    run_baseline(system, P[:2], inputs)
+    t_adlin, t_loop, ref, ref_ok, result = [], [], [], [], None
+    for rows in np.array_split(np.arange(P.shape[0]), rounds):
+        t0 = time.perf_counter()
+        result = adlin_call()
+        t_adlin.append(time.perf_counter() - t0)
+        out, ok, seconds = run_baseline(system, P[rows], inputs)
+        t_loop.append(seconds / rows.size)
+        ref += out
+        ref_ok.append(ok)
+    return t_adlin, t_loop, ref, np.concatenate(ref_ok), result
+
+
 def pole_agreement(poles, ok, ref, ref_ok) -> tuple[float, float, int]:
     """Largest relative pole difference, overall and below 1e8 rad/s, where both converged
     (each adlin pole matched to one loop pole by a minimum-cost assignment)."""
