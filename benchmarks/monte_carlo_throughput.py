@@ -32,8 +32,8 @@ import time
 
 import jax
 import numpy as np
-from nominal_cost import describe, nominal_seconds, report
-from scipy_loop import in_turns, pole_agreement
+from nominal_cost import describe, nominal_seconds
+from scipy_loop import in_turns, pole_agreement, report
 
 import adlin
 from adlin.scenarios import sensor_ldo

@@ -10,6 +10,7 @@ clock starts.  Used by `throughput.py` and `monte_carlo_throughput.py`.
 
 from __future__ import annotations
 
+import statistics
 import time
 
 import jax
@@ -80,6 +81,23 @@ def in_turns(adlin_call, system, P, rounds: int, inputs=None):
         ref += out
         ref_ok.append(ok)
     return t_adlin, t_loop, ref, np.concatenate(ref_ok), result
+
+
+def report(n: int, nb: int, t_first: float, warm, loop, adlin_note: str, loop_note: str) -> None:
+    """Print adlin's and the loop's times from `scipy_loop.in_turns` and their
+    ratio per round (loop seconds per sample x n / adlin seconds per call)."""
+    t_warm, t_loop = statistics.median(warm), statistics.median(loop)
+    ratios = [lp * n / a for a, lp in zip(warm, loop, strict=True)]
+    print(f"adlin, warm       : min/median/max {min(warm):.3f}/{t_warm:.3f}/{max(warm):.3f} s "
+          f"= {n / t_warm:,.0f} samples/s median ({t_warm / n * 1e6:.1f} us per sample), "
+          f"{adlin_note}; first call {t_first:.2f} s (includes compilation)")
+    print(f"scipy loop        : {t_loop * 1e3:.2f} ms per sample median "
+          f"({min(loop) * 1e3:.2f}-{max(loop) * 1e3:.2f} over the rounds) = "
+          f"{1 / t_loop:,.0f} samples/s, on {nb} of the samples, {loop_note}")
+    print(f"speed-up, warm adlin vs scipy loop : {statistics.median(ratios):8.1f}x median of "
+          f"{len(ratios)} rounds ({min(ratios):.1f}x to {max(ratios):.1f}x), each round one adlin "
+          "call and then its share of the loop   (target >= 300x)")
+    print(f"speed-up, adlin first call         : {t_loop * n / t_first:8.1f}x")
 
 
 def pole_agreement(poles, ok, ref, ref_ok) -> tuple[float, float, int]:

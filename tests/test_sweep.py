@@ -155,7 +155,7 @@ def test_the_nominal_point_is_remembered_per_nominal_values_only():
 
     system = low_pass()
     compiled = compile(system)
-    compiled.__dict__.pop("_nominal_memo", None)
+    memo._MEMO.pop(compiled, None)
     first, plans = memo.nominal_point(compiled, {"v_s": 2.0}, None, plans=True)
     again, plans_again = memo.nominal_point(compiled, {"v_s": 2.0}, None, plans=True)
     assert again is first and plans_again is plans
@@ -166,7 +166,7 @@ def test_the_nominal_point_is_remembered_per_nominal_values_only():
                                   np.asarray(adlin.steady_state(system, {"v_s": 2.0 + 1e-12}).x))
     for k in range(memo.MEMO_SIZE + 3):
         memo.nominal_point(compiled, None, {"R": 1e3 + k}, plans=False)
-    assert len(compiled.__dict__["_nominal_memo"]) == memo.MEMO_SIZE
+    assert len(memo._MEMO[compiled]) == memo.MEMO_SIZE
     fresh, _ = memo.nominal_point(compiled, {"v_s": 2.0}, None, plans=False)
     assert fresh is not first  # evicted, solved again
     np.testing.assert_array_equal(np.asarray(fresh.x), np.asarray(first.x))

@@ -14,6 +14,7 @@ changed value is a new key and nothing stale is ever returned.
 
 from __future__ import annotations
 
+import weakref
 from collections import OrderedDict
 from collections.abc import Mapping
 from typing import Any
@@ -24,6 +25,9 @@ from .fast_path import plan_at
 
 #: Nominal points remembered per compiled model (each a few vectors).
 MEMO_SIZE = 8
+# compiled model -> OrderedDict (input bytes, param bytes) -> [op, plans];
+# weak, so the memo goes with the compiled model (`jax.clear_caches` users)
+_MEMO: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
 
 
 def nominal_point(compiled, inputs: Mapping[str, Any] | None,
@@ -38,7 +42,7 @@ def nominal_point(compiled, inputs: Mapping[str, Any] | None,
     system = compiled.system
     u = np.asarray(system.input_vector(inputs), dtype=np.float64)
     p = np.asarray(system.param_vector(params), dtype=np.float64)
-    memo: OrderedDict = compiled.__dict__.setdefault("_nominal_memo", OrderedDict())
+    memo = _MEMO.setdefault(compiled, OrderedDict())
     key = (u.tobytes(), p.tobytes())
     entry = memo.get(key)
     if entry is None:
@@ -51,4 +55,3 @@ def nominal_point(compiled, inputs: Mapping[str, Any] | None,
         op = entry[0]
         entry[1] = plan_at(compiled, *(np.asarray(a) for a in (op.x, op.u, op.p)))
     return entry[0], (entry[1] if plans else None)
-
